@@ -1,0 +1,48 @@
+"""Shared pieces of the command line: error reporting, profile loading, cautions."""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from synth.errors import InputError
+
+#: Printed (to stderr) whenever a drive file is written.
+DRIVE_CAUTION = (
+    "CAUTION: a drive file is open-loop. Play it only through a closed-loop vibration controller "
+    "with its own alarm and abort limits; check the shaker's stroke, velocity and force limits "
+    "against the figures above; follow your lab's procedures, local codes and licensed practice."
+)
+
+
+def fail(message: str) -> "NoReturn":  # noqa: F821
+    """Raise a click usage error that the entry point prints as one line (exit 2)."""
+    raise click.UsageError(" ".join(str(message).split()))
+
+
+def load_profile(spec: str, grms: float | None = None, level_db: float | None = None):
+    """Read a profile (file or preset name) and apply an optional rescale."""
+    from synth.profile_io import read_profile
+
+    profile = read_profile(spec)
+    if grms is not None and level_db is not None:
+        fail("give --grms or --level-db, not both")
+    if grms is not None:
+        profile = profile.scaled_to_grms(grms)
+    if level_db is not None:
+        profile = profile.scaled_db(level_db)
+    return profile
+
+
+def warn(message: str) -> None:
+    """One warning line on stderr."""
+    click.echo(f"vibsynth: warning: {message}", err=True)
+
+
+def is_interactive_stderr() -> bool:
+    """True when stderr is a terminal (progress bars are shown only then)."""
+    try:
+        return sys.stderr.isatty()
+    except (AttributeError, ValueError):
+        return False

@@ -1,0 +1,121 @@
+"""`vibsynth info` and `vibsynth presets`: what a profile means in overall figures."""
+
+from __future__ import annotations
+
+import json
+
+import click
+
+from cli.common import load_profile
+
+METRE_PER_INCH = 0.0254  # exact (international inch, 1959)
+
+
+def _format_info(profile, inch: bool) -> str:
+    summary = profile.summary()
+    lines = [f"{profile.name}: {profile.description}" if profile.description else profile.name]
+    if profile.source:
+        lines.append(f"from {profile.source}")
+    lines.append("")
+    lines.append(f"  {'frequency (Hz)':>14}  {'ASD (g^2/Hz)':>13}  {'slope (dB/oct)':>14}  {'share of g^2':>12}")
+    for point in summary["breakpoints"]:
+        slope = "" if point["slope_db_per_octave"] is None else f"{point['slope_db_per_octave']:+.2f}"
+        share = "" if point["share_of_mean_square"] is None else f"{100 * point['share_of_mean_square']:.1f} %"
+        lines.append(f"  {point['frequency']:>14.6g}  {point['asd']:>13.5g}  {slope:>14}  {share:>12}")
+    lines.append("  (slope and share belong to the segment that ends at the row)")
+    lines.append("")
+    velocity = summary["velocity_rms"]
+    displacement = summary["displacement_rms"]
+    stroke = summary["displacement_peak_to_peak_3sigma"]
+    if inch:
+        velocity_text = f"{velocity / METRE_PER_INCH:.4g} in/s RMS"
+        displacement_text = f"{displacement / METRE_PER_INCH:.4g} in RMS"
+        stroke_text = f"{stroke / METRE_PER_INCH:.4g} in"
+    else:
+        velocity_text = f"{velocity:.4g} m/s RMS"
+        displacement_text = f"{displacement * 1e3:.4g} mm RMS"
+        stroke_text = f"{stroke * 1e3:.4g} mm"
+    rows = [
+        ("acceleration", f"{summary['grms']:.4g} g RMS  (mean-square {summary['mean_square']:.4g} g^2)"),
+        ("velocity", velocity_text),
+        ("displacement", displacement_text),
+        ("stroke needed", f"{stroke_text} peak-to-peak (+/-3 sigma displacement)"),
+        ("band", f"{summary['frequency_min']:g} to {summary['frequency_max']:g} Hz"),
+        ("zero up-crossings", f"{summary['zero_upcrossing_rate']:.4g} per s (Rice)"),
+        ("peaks (maxima)", f"{summary['peak_rate']:.4g} per s; irregularity factor {summary['irregularity_factor']:.3f}"),
+    ]
+    width = max(len(label) for label, _ in rows)
+    lines += [f"  {label:<{width}}  {value}" for label, value in rows]
+    return "\n".join(lines)
+
+
+@click.command()
+@click.argument("profile")
+@click.option("--json", "as_json", is_flag=True, help="Print the figures as JSON (keys: grms, velocity_rms, ...).")
+@click.option("--grms", type=float, default=None, metavar="G", help="First rescale the profile to this overall g RMS.")
+@click.option(
+    "--level-db",
+    type=float,
+    default=None,
+    metavar="DB",
+    help="First shift the profile by DB decibels (e.g. -6 for a -6 dB test level: half the g RMS).",
+)
+@click.option("--inch", is_flag=True, help="Show velocity in in/s and displacement in inches (JSON stays SI).")
+@click.option(
+    "--write",
+    "write_path",
+    type=click.Path(dir_okay=False, writable=True),
+    default=None,
+    metavar="FILE",
+    help="Also write the (rescaled) profile to FILE (.toml or .csv).",
+)
+def info(profile, as_json, grms, level_db, inch, write_path):
+    """Overall figures of an ASD profile: g RMS, velocity, displacement, stroke.
+
+    Prints each breakpoint with the slope (dB/octave) and the share of the
+    mean-square of the segment that ends there, then the overall g RMS
+    (square root of the area under the ASD, integrated exactly on log-log
+    segments), velocity and displacement RMS (SI; --inch for in/s and in),
+    the 3-sigma peak-to-peak displacement a shaker needs, and Rice's zero
+    up-crossing and peak rates.
+    """
+    from synth.profile_io import write_profile
+
+    loaded = load_profile(profile, grms=grms, level_db=level_db)
+    if write_path:
+        write_profile(loaded, write_path)
+    if as_json:
+        click.echo(json.dumps(loaded.summary(), indent=2))
+    else:
+        click.echo(_format_info(loaded, inch))
+        if write_path:
+            click.echo(f"\nwrote {write_path}")
+
+
+@click.command()
+@click.option("--json", "as_json", is_flag=True, help="Print the list as JSON.")
+def presets(as_json):
+    """List the bundled demo profiles (invented scenarios) with band and g RMS."""
+    from synth.profile_io import preset_names, read_preset
+
+    rows = []
+    for name in preset_names():
+        profile = read_preset(name)
+        rows.append(
+            {
+                "name": name,
+                "frequency_min": profile.frequency_min_hz,
+                "frequency_max": profile.frequency_max_hz,
+                "grms": profile.grms,
+                "description": profile.description,
+            }
+        )
+    if as_json:
+        click.echo(json.dumps(rows, indent=2))
+        return
+    width = max(len(row["name"]) for row in rows)
+    click.echo(f"{'name':<{width}}  {'band (Hz)':>12}  {'g RMS':>7}  description")
+    for row in rows:
+        band = f"{row['frequency_min']:g}-{row['frequency_max']:g}"
+        click.echo(f"{row['name']:<{width}}  {band:>12}  {row['grms']:>7.3f}  {row['description']}")
+    click.echo("All presets are invented demo data, not requirements of any real programme.")

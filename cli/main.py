@@ -1,0 +1,99 @@
+"""The ``vibsynth`` command: a thin click shell over :mod:`synth`.
+
+Every command parses its options, calls :mod:`synth`, and formats the result.
+Bad input of any kind (profile files, options, drive files) ends with one line
+on stderr and exit status 2, never a traceback.
+"""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from synth import __version__
+from synth.errors import InputError
+
+
+class _Group(click.Group):
+    """Click group that lists commands in the order they were added."""
+
+    def list_commands(self, ctx):
+        return list(self.commands)
+
+
+@click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100})
+@click.version_option(__version__, prog_name="vibsynth")
+def cli():
+    """Random-vibration drive synthesis from ASD breakpoint tables, with independent verification.
+
+    PROFILE arguments take a TOML profile, a two-column CSV (Hz, g^2/Hz), or the
+    name of a bundled preset (see `vibsynth presets`).
+
+    Drive files are open-loop signals: play them only through a closed-loop
+    controller with alarm and abort limits, within the shaker's stroke,
+    velocity and force limits, under your lab's procedures.
+    """
+
+
+def _register() -> None:
+    from cli import info_cmd
+
+    cli.add_command(info_cmd.info)
+    cli.add_command(info_cmd.presets)
+    for module_name, names in (
+        ("cli.generate_cmd", ("generate",)),
+        ("cli.verify_cmd", ("verify", "run")),
+        ("cli.peaks_cmd", ("peaks",)),
+    ):
+        try:
+            module = __import__(module_name, fromlist=list(names))
+        except ModuleNotFoundError as error:
+            if error.name != module_name:
+                raise
+            continue
+        for name in names:
+            cli.add_command(getattr(module, name))
+
+
+_register()
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the console script; returns (and exits with) the status code.
+
+    0: success (verify: pass); 1: verify found the drive out of tolerance;
+    2: bad input, reported as one line on stderr.
+    """
+    prog = "vibsynth"
+    try:
+        status = cli.main(args=argv, prog_name=prog, standalone_mode=False)
+    except InputError as error:
+        click.echo(f"{prog}: error: {error.one_line()}", err=True)
+        status = 2
+    except click.exceptions.Exit as done:
+        status = done.exit_code
+    except click.Abort:
+        click.echo(f"{prog}: aborted", err=True)
+        status = 130
+    except click.ClickException as error:
+        ctx_name = getattr(getattr(error, "ctx", None), "command_path", prog) or prog
+        click.echo(f"{ctx_name}: error: {_one_line(error.format_message())} (see '{ctx_name} --help')", err=True)
+        status = 2
+    except OSError as error:
+        where = f"{error.filename}: " if getattr(error, "filename", None) else ""
+        click.echo(f"{prog}: error: {where}{_one_line(error.strerror or error)}", err=True)
+        status = 2
+    if status is None:
+        status = 0
+    if argv is None:
+        sys.exit(status)
+    return status
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

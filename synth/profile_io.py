@@ -1,0 +1,366 @@
+"""Reading and writing ASD profiles: TOML profiles, two-column CSV tables, bundled presets.
+
+TOML profile format (vibsynth's own)::
+
+    name = "conveyor-transfer"
+    description = "Invented demo: parcel conveyor transfer deck"
+    unit = "g^2/Hz"                 # or "(m/s^2)^2/Hz"
+    level_db = 0.0                  # optional: shift the whole table by dB ...
+    # grms = 3.5                    # ... or scale it to an overall g RMS (not both)
+
+    [[breakpoints]]
+    frequency = 10.0
+    asd = 0.002
+
+    [[breakpoints]]
+    frequency = 40.0
+    slope_db_per_octave = 6.0      # this point's ASD follows from the previous one
+
+Each breakpoint gives ``frequency`` (Hz) and exactly one of ``asd`` and
+``slope_db_per_octave``.
+
+CSV: two columns, frequency in Hz and ASD in g^2/Hz, separated by commas,
+semicolons, tabs or spaces; an optional header row; ``#`` starts a comment.
+A header whose second column names ``(m/s^2)^2/Hz`` switches the unit.
+"""
+
+from __future__ import annotations
+
+import csv
+import difflib
+import io
+import math
+import os
+import re
+import tomllib
+from importlib import resources
+from pathlib import Path
+
+from synth.errors import InputError
+from synth.profile import STANDARD_GRAVITY_M_S2, AsdProfile
+
+#: Accepted spellings of the two ASD units, mapped to the factor that converts to g^2/Hz.
+_UNITS = {
+    "g^2/hz": 1.0,
+    "g2/hz": 1.0,
+    "g²/hz": 1.0,
+    "(m/s^2)^2/hz": 1.0 / STANDARD_GRAVITY_M_S2**2,
+    "(m/s2)2/hz": 1.0 / STANDARD_GRAVITY_M_S2**2,
+    "m^2/s^4/hz": 1.0 / STANDARD_GRAVITY_M_S2**2,
+    "(m/s²)²/hz": 1.0 / STANDARD_GRAVITY_M_S2**2,
+}
+_UNIT_HELP = "'g^2/Hz' or '(m/s^2)^2/Hz'"
+
+_TOP_KEYS = ("name", "description", "unit", "level_db", "grms", "notes", "breakpoints")
+_POINT_KEYS = ("frequency", "asd", "slope_db_per_octave")
+
+PRESET_PACKAGE = "synth.presets"
+
+
+def _suggest(key: str, allowed) -> str:
+    close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.5)
+    hint = f"did you mean '{close[0]}'? " if close else ""
+    return f"{hint}allowed keys: {', '.join(allowed)}"
+
+
+def _unit_factor(unit, source: str, location: str) -> float:
+    if not isinstance(unit, str):
+        raise InputError(f"unit must be text, {_UNIT_HELP}", source, location)
+    key = unit.strip().lower().replace(" ", "")
+    if key not in _UNITS:
+        raise InputError(f"unknown unit '{unit}'; use {_UNIT_HELP}", source, location)
+    return _UNITS[key]
+
+
+def _number(value, source: str, location: str, what: str) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise InputError(f"{what} must be a number, got {value!r}", source, location)
+    number = float(value)
+    if not math.isfinite(number):
+        raise InputError(f"{what} must be a finite number, got {value!r}", source, location)
+    return number
+
+
+# --------------------------------------------------------------------- TOML
+def parse_toml_profile(text: str, source: str = "<toml>") -> AsdProfile:
+    """Parse a vibsynth TOML profile.
+
+    Parameters
+    ----------
+    text : str
+        The TOML document (format in the module docstring).
+    source : str
+        File name for error messages.
+
+    Returns
+    -------
+    AsdProfile
+        ASD in g^2/Hz, with the optional ``level_db`` or ``grms`` scaling applied.
+
+    References
+    ----------
+    TOML v1.0.0 (toml.io); log-log breakpoint tables with dB/octave slopes.
+    """
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as error:
+        raise InputError(f"not valid TOML ({error})", source) from None
+    for key in data:
+        if key not in _TOP_KEYS:
+            raise InputError(f"unknown key '{key}'; {_suggest(key, _TOP_KEYS)}", source, key)
+    points = data.get("breakpoints")
+    if points is None:
+        raise InputError("no [[breakpoints]] table; add at least two breakpoints", source)
+    if not isinstance(points, list) or not all(isinstance(p, dict) for p in points):
+        raise InputError("'breakpoints' must be an array of tables ([[breakpoints]])", source, "breakpoints")
+    if len(points) < 2:
+        raise InputError(f"a profile needs at least two breakpoints, got {len(points)}", source, "breakpoints")
+    factor = _unit_factor(data.get("unit", "g^2/Hz"), source, "unit")
+    triples = []
+    for index, point in enumerate(points):
+        location = f"breakpoints[{index + 1}]"
+        for key in point:
+            if key not in _POINT_KEYS:
+                raise InputError(f"unknown key '{key}'; {_suggest(key, _POINT_KEYS)}", source, location)
+        if "frequency" not in point:
+            raise InputError("missing 'frequency' (Hz)", source, location)
+        frequency = _number(point["frequency"], source, location + ".frequency", "frequency (Hz)")
+        asd = slope = None
+        if "asd" in point:
+            asd = _number(point["asd"], source, location + ".asd", "asd (g^2/Hz)") * factor
+        if "slope_db_per_octave" in point:
+            slope = _number(point["slope_db_per_octave"], source, location + ".slope_db_per_octave", "slope (dB/octave)")
+        triples.append((frequency, asd, slope))
+    name = data.get("name", Path(source).stem if source else "profile")
+    description = data.get("description", "")
+    if not isinstance(name, str) or not isinstance(description, str):
+        raise InputError("'name' and 'description' must be text", source)
+    profile = AsdProfile.from_breakpoints(triples, name=name, description=description, source=source)
+    if "level_db" in data and "grms" in data:
+        raise InputError("give 'level_db' or 'grms', not both", source)
+    if "level_db" in data:
+        profile = profile.scaled_db(_number(data["level_db"], source, "level_db", "level_db (dB)"))
+    if "grms" in data:
+        profile = profile.scaled_to_grms(_number(data["grms"], source, "grms", "grms (g)"))
+    return profile
+
+
+# ---------------------------------------------------------------------- CSV
+_SPLIT = re.compile(r"[,;\t ]+")
+
+
+def parse_csv_profile(text: str, source: str = "<csv>") -> AsdProfile:
+    """Parse a two-column CSV table: frequency (Hz), ASD (g^2/Hz).
+
+    Parameters
+    ----------
+    text : str
+        The table; separators ``,`` ``;`` tab or spaces; ``#`` comments; an
+        optional header row (first data line whose cells are not numbers).
+    source : str
+        File name for error messages.
+
+    Returns
+    -------
+    AsdProfile
+
+    References
+    ----------
+    RFC 4180 (CSV), relaxed to the separators test labs use.
+    """
+    factor = 1.0
+    triples = []
+    header_seen = False
+    for number, raw in enumerate(text.splitlines(), start=1):
+        line = raw.split("#", 1)[0].strip()
+        if not line:
+            continue
+        cells = [c for c in _SPLIT.split(line) if c != ""]
+        row = f"row {number}"
+        if not triples and not header_seen and not _looks_numeric(cells[0]):
+            header_seen = True
+            header = line.lower().replace(" ", "")
+            if "m/s" in header:
+                factor = 1.0 / STANDARD_GRAVITY_M_S2**2
+            continue
+        if len(cells) != 2:
+            raise InputError(
+                f"expected 2 columns (frequency in Hz, ASD in g^2/Hz), found {len(cells)}: {line!r}", source, row
+            )
+        values = []
+        for cell, what in zip(cells, ("frequency (Hz)", "ASD (g^2/Hz)")):
+            try:
+                value = float(cell)
+            except ValueError:
+                raise InputError(f"{what} {cell!r} is not a number", source, row) from None
+            if not math.isfinite(value):
+                raise InputError(f"{what} {cell!r} is not a finite number", source, row)
+            values.append(value)
+        frequency, asd = values
+        if frequency <= 0:
+            raise InputError(f"frequency {frequency:g} Hz must be > 0", source, row)
+        if asd <= 0:
+            raise InputError(
+                f"ASD {asd:g} must be > 0 (log-log interpolation needs positive values)", source, row
+            )
+        if triples and frequency <= triples[-1][0]:
+            what = "repeats" if frequency == triples[-1][0] else "is below"
+            raise InputError(
+                f"frequency {frequency:g} Hz {what} the previous row ({triples[-1][0]:g} Hz); "
+                "frequencies must be strictly increasing",
+                source,
+                row,
+            )
+        triples.append((frequency, asd * factor, None))
+    if not triples:
+        raise InputError("no data rows; expected rows of 'frequency_hz, asd_g2_per_hz'", source)
+    if len(triples) < 2:
+        raise InputError(f"a profile needs at least two breakpoints, got {len(triples)}", source)
+    return AsdProfile.from_breakpoints(triples, name=Path(source).stem, source=source)
+
+
+def _looks_numeric(cell: str) -> bool:
+    try:
+        float(cell)
+    except ValueError:
+        return False
+    return True
+
+
+# ------------------------------------------------------------------ presets
+def preset_names() -> list[str]:
+    """Names of the bundled presets (TOML files shipped in the package), sorted."""
+    folder = resources.files(PRESET_PACKAGE)
+    return sorted(p.name[: -len(".toml")] for p in folder.iterdir() if p.name.endswith(".toml"))
+
+
+def read_preset(name: str) -> AsdProfile:
+    """Load a bundled preset by name (see :func:`preset_names`)."""
+    names = preset_names()
+    if name not in names:
+        close = difflib.get_close_matches(name, names, n=1, cutoff=0.5)
+        hint = f"did you mean '{close[0]}'? " if close else ""
+        raise InputError(f"no such file or preset; {hint}presets: {', '.join(names)}", name)
+    text = resources.files(PRESET_PACKAGE).joinpath(name + ".toml").read_text(encoding="utf-8")
+    return parse_toml_profile(text, source=f"preset {name}")
+
+
+# --------------------------------------------------------------- dispatcher
+def read_profile(spec: str | os.PathLike) -> AsdProfile:
+    """Read a profile from a TOML file, a CSV file or a bundled preset name.
+
+    Parameters
+    ----------
+    spec : str or path
+        A path ending in ``.toml`` or ``.csv`` (``.txt`` and ``.dat`` are read
+        as CSV), or the name of a bundled preset.
+
+    Returns
+    -------
+    AsdProfile
+        ASD in g^2/Hz.
+
+    Raises
+    ------
+    InputError
+        Missing/empty/unreadable file, unknown suffix, or any content problem;
+        the message names the file and the row or key.
+
+    References
+    ----------
+    See :func:`parse_toml_profile` and :func:`parse_csv_profile`.
+    """
+    text_spec = os.fspath(spec)
+    path = Path(text_spec)
+    if not path.exists():
+        if path.suffix == "" and os.sep not in text_spec:
+            return read_preset(text_spec)
+        raise InputError("no such file; give a .toml or .csv profile or a preset name (see 'vibsynth presets')", text_spec)
+    if path.is_dir():
+        raise InputError("is a folder; give a .toml or .csv profile file", text_spec)
+    suffix = path.suffix.lower()
+    if suffix not in (".toml", ".csv", ".txt", ".dat"):
+        raise InputError(f"unknown profile suffix '{path.suffix}'; use .toml or .csv", text_spec)
+    try:
+        raw = path.read_bytes()
+    except OSError as error:
+        raise InputError(f"cannot read ({error.strerror})", text_spec) from None
+    if not raw.strip():
+        raise InputError("file is empty; expected a profile with at least two breakpoints", text_spec)
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as error:
+        raise InputError(f"not UTF-8 text (byte {error.start}); save the profile as UTF-8", text_spec) from None
+    if suffix == ".toml":
+        return parse_toml_profile(text, source=text_spec)
+    return parse_csv_profile(text, source=text_spec)
+
+
+# ------------------------------------------------------------------ writing
+def format_toml_profile(profile: AsdProfile) -> str:
+    """The profile as vibsynth TOML (ASD values at every breakpoint, g^2/Hz)."""
+    lines = [
+        f"name = {_toml_string(profile.name)}",
+        f"description = {_toml_string(profile.description)}",
+        'unit = "g^2/Hz"',
+        f"# overall {profile.grms:.6g} g RMS, band {profile.frequency_min_hz:g}-{profile.frequency_max_hz:g} Hz",
+    ]
+    slopes = profile.slopes_db_per_octave
+    for index, (frequency, asd) in enumerate(zip(profile.frequencies_hz, profile.asd_g2_per_hz)):
+        lines.append("")
+        lines.append("[[breakpoints]]")
+        lines.append(f"frequency = {float(frequency)!r}")
+        comment = "" if index == 0 else f"  # {slopes[index - 1]:+.3f} dB/octave from the previous point"
+        lines.append(f"asd = {float(asd)!r}{comment}")
+    return "\n".join(lines) + "\n"
+
+
+def format_csv_profile(profile: AsdProfile) -> str:
+    """The profile as a two-column CSV with a header (Hz, g^2/Hz)."""
+    buffer = io.StringIO()
+    heading = f"{profile.name}: {profile.description}" if profile.description else profile.name
+    buffer.write("# " + " ".join(heading.split()) + "\n")
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(["frequency_hz", "asd_g2_per_hz"])
+    for frequency, asd in zip(profile.frequencies_hz, profile.asd_g2_per_hz):
+        writer.writerow([repr(float(frequency)), repr(float(asd))])
+    return buffer.getvalue()
+
+
+def write_profile(profile: AsdProfile, path: str | os.PathLike) -> Path:
+    """Write a profile as TOML or CSV (by suffix), atomically (temporary name, then rename).
+
+    Parameters
+    ----------
+    profile : AsdProfile
+    path : str or path
+        Destination ending in ``.toml`` or ``.csv``.
+
+    Returns
+    -------
+    pathlib.Path
+        The written path.
+    """
+    destination = Path(path)
+    suffix = destination.suffix.lower()
+    if suffix == ".toml":
+        text = format_toml_profile(profile)
+    elif suffix == ".csv":
+        text = format_csv_profile(profile)
+    else:
+        raise InputError(f"cannot write a profile as '{destination.suffix}'; use .toml or .csv", str(destination))
+    if not destination.parent.exists():
+        raise InputError("folder does not exist", str(destination.parent))
+    temporary = destination.with_name(f".{destination.name}.partial-{os.getpid()}")
+    try:
+        temporary.write_text(text, encoding="utf-8")
+        os.replace(temporary, destination)
+    finally:
+        if temporary.exists():
+            temporary.unlink()
+    return destination
+
+
+def _toml_string(text: str) -> str:
+    escaped = text.replace("\\", "\\\\").replace('"', '\\"').replace("\n", " ")
+    return f'"{escaped}"'
