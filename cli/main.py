@@ -53,7 +53,9 @@ def _register() -> None:
                 raise
             continue
         for name in names:
-            cli.add_command(getattr(module, name))
+            command = getattr(module, name, None)
+            if command is not None:
+                cli.add_command(command)
 
 
 _register()
