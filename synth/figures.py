@@ -18,6 +18,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.figure import Figure
 
+from synth.errors import InputError
 from synth.verify import Verification
 
 PAPER = "#fbf8f1"
@@ -52,6 +53,18 @@ def _figure(width_in: float = 9.0, height_in: float = 5.2) -> Figure:
     return figure
 
 
+def _margins(figure: Figure, bottom_in: float, right_in: float = 0.3, left_in: float = 0.85,
+             top_in: float = 0.62) -> None:
+    """Fixed margins in inches (room for the headings above and the labels/legend below).
+
+    Fixed margins instead of an automatic layout engine: the figures have fixed
+    sizes and contents, and an engine costs several re-draws per file.
+    """
+    width, height = figure.get_size_inches()
+    figure.subplots_adjust(left=left_in / width, right=1 - right_in / width,
+                           bottom=bottom_in / height, top=1 - top_in / height)
+
+
 def _style(ax):
     ax.set_facecolor(PAPER)
     ax.set_axisbelow(True)
@@ -66,6 +79,26 @@ def _style(ax):
 
 def _verdict(result: Verification) -> str:
     return "PASS" if result.passed else "FAIL: " + ", ".join(result.failed)
+
+
+def _headings(figure: Figure, ax, result: Verification, title: str, detail: str) -> None:
+    """File/profile name on top, the figure's key numbers below it, the verdict in colour on the right."""
+    height = figure.get_size_inches()[1]
+    figure.suptitle(title or result.profile.name, x=0.012, y=1 - 0.08 / height, ha="left", va="top",
+                    fontsize=10.5, color=INK)
+    ax.set_title(detail, fontsize=9, color=INK, loc="left")
+    ax.set_title(
+        _verdict(result), fontsize=10.5, weight="bold", loc="right",
+        color=MEASURED if result.passed else OUTSIDE,
+    )
+
+
+def _legend_below(figure: Figure, ax, ncol: int) -> None:
+    """Legend outside the data area, under the axes, so it never hides a curve."""
+    handles, labels = ax.get_legend_handles_labels()
+    if handles:
+        figure.legend(handles, labels, loc="lower center", bbox_to_anchor=(0.5, 0.0), ncol=ncol, fontsize=8,
+                      frameon=False)
 
 
 def asd_figure(result: Verification, title: str = "") -> Figure:
@@ -87,6 +120,7 @@ def asd_figure(result: Verification, title: str = "") -> Figure:
     """
     c, e, criteria = result.comparison, result.estimate, result.criteria
     figure = _figure()
+    _margins(figure, bottom_in=1.1)
     ax = figure.add_subplot(1, 1, 1)
     _style(ax)
     profile = result.profile
@@ -111,29 +145,35 @@ def asd_figure(result: Verification, title: str = "") -> Figure:
     )
     ax.loglog(dense, target, color=TARGET, lw=1.4, ls=(0, (6, 3)), label="target")
     ax.loglog(c.frequencies_hz[show], c.measured_g2_per_hz[show], color=MEASURED, lw=1.1, label="measured (Welch)")
-    bad = c.judged & ~c.within
-    if np.any(bad):
-        ax.plot(c.frequencies_hz[bad], c.measured_g2_per_hz[bad], "|", color=OUTSIDE, ms=9, mew=1.3,
-                label=f"outside tolerance ({int(np.count_nonzero(bad))} lines)")
-    if np.any(c.edge):
-        ax.plot(c.frequencies_hz[c.edge], c.measured_g2_per_hz[c.edge], ".", color=MUTED, ms=4,
-                label="band edge: reported, not judged")
     positive = c.measured_g2_per_hz[show]
     positive = positive[positive > 0]
     floor = max(np.min(target) / 100, (np.min(positive) if positive.size else np.min(target)) / 2)
-    ax.set_ylim(floor, np.max(target) * 10 ** (criteria.tolerance_high_db / 10) * 3)
+    ceiling = max(np.max(target) * 10 ** (criteria.tolerance_high_db / 10) * 3,
+                  (np.max(positive) if positive.size else 0.0) * 2)
+    ax.set_ylim(floor, ceiling)
+    bad = c.judged & ~c.within
+    if np.any(bad):
+        # Lines far outside (a notch, say) may fall below the plotted range: pin their
+        # markers to the axis edge so every failing line stays visible.
+        values = np.clip(c.measured_g2_per_hz[bad], floor * 1.25, ceiling / 1.25)
+        ax.plot(c.frequencies_hz[bad], values, "o", color=OUTSIDE, ms=2.6, mew=0, zorder=3,
+                label=f"outside tolerance ({int(np.count_nonzero(bad))} lines; ticks on the axis)")
+        ax.plot(c.frequencies_hz[bad], np.zeros(int(np.count_nonzero(bad))), "|", color=OUTSIDE, ms=7, mew=1.0,
+                transform=ax.get_xaxis_transform(), clip_on=False)
+    if np.any(c.edge):
+        ax.plot(c.frequencies_hz[c.edge], np.clip(c.measured_g2_per_hz[c.edge], floor * 1.25, None), ".",
+                color=MUTED, ms=5, label=f"within {criteria.edge_exclusion_resolutions:g} resolution widths of a "
+                                          "band edge: reported, not judged")
     ax.set_xlim(f_lo, f_hi)
     ax.set_xlabel("frequency (Hz)")
     ax.set_ylabel("ASD (g²/Hz)")
-    heading = title or profile.name
-    ax.set_title(
-        f"{heading} | {_verdict(result)} | {result.grms_measured:.3g} g RMS measured, "
-        f"{result.grms_target:.3g} target ({result.grms_error_percent:+.1f} %) | "
-        f"resolution {e.resolution_hz:g} Hz",
-        fontsize=9.5, color=INK, loc="left",
+    _headings(
+        figure, ax, result, title,
+        f"{result.grms_measured:.3g} g RMS measured, {result.grms_target:.3g} g target "
+        f"({result.grms_error_percent:+.1f} %); worst line {c.max_deviation_db:+.2f} dB at "
+        f"{c.max_deviation_frequency_hz:g} Hz; resolution {e.resolution_hz:g} Hz",
     )
-    ax.legend(loc="lower center", fontsize=8, frameon=False, ncol=3)
-    figure.tight_layout()
+    _legend_below(figure, ax, ncol=3)
     return figure
 
 
@@ -145,6 +185,7 @@ def amplitude_figure(result: Verification, title: str = "") -> Figure:
     Normal density phi(z) = exp(-z^2/2)/sqrt(2 pi).
     """
     figure = _figure()
+    _margins(figure, bottom_in=0.6)
     ax = figure.add_subplot(1, 1, 1)
     _style(ax)
     edges = result.histogram_edges_sigma
@@ -158,50 +199,67 @@ def amplitude_figure(result: Verification, title: str = "") -> Figure:
     ax.set_ylim(max(1e-7, 0.5 / max(stats["samples"], 1) / (edges[1] - edges[0])), 1.0)
     ax.set_xlim(edges[0], edges[-1])
     ax.set_xlabel("(x - mean) / standard deviation")
-    ax.set_ylabel("probability density")
-    ax.set_title(
-        f"{title or result.profile.name} | kurtosis {stats['kurtosis']:.3f}, skewness {stats['skewness']:+.3f}, "
+    ax.set_ylabel("probability density (1/σ)")
+    _headings(
+        figure, ax, result, title,
+        f"amplitude density: kurtosis {stats['kurtosis']:.3f}, skewness {stats['skewness']:+.3f}, "
         f"crest factor {stats['crest_factor']:.2f}",
-        fontsize=9.5, loc="left", color=INK,
     )
-    ax.legend(frameon=False, fontsize=8)
-    figure.tight_layout()
+    ax.legend(frameon=False, fontsize=8, loc="upper right")
     return figure
 
 
 def excerpt_figure(result: Verification, title: str = "") -> Figure:
     """The record around its largest sample, with +/-1, 2, 3 sigma lines (g against s)."""
     figure = _figure(9.0, 4.2)
+    _margins(figure, bottom_in=0.6, right_in=0.5)
     ax = figure.add_subplot(1, 1, 1)
     _style(ax)
     stats = result.statistics
-    ax.plot(result.excerpt_t_s, result.excerpt_g, color=MEASURED, lw=0.7)
+    mean, std = stats["mean"], stats["std"]
+    t, x = result.excerpt_t_s, result.excerpt_g
+    ax.plot(t, x, color=MEASURED, lw=0.7)
+    levels = []
     for k in (1, 2, 3):
         for sign in (1, -1):
-            ax.axhline(stats["mean"] + sign * k * stats["std"], color=MUTED if k < 3 else OUTSIDE,
-                       lw=0.8, ls=(0, (4, 3)))
-        ax.text(result.excerpt_t_s[-1] if result.excerpt_t_s.size else 0, stats["mean"] + k * stats["std"],
-                f" {k}σ", va="center", fontsize=8, color=INK)
+            ax.axhline(mean + sign * k * std, color=MUTED if k < 3 else OUTSIDE, lw=0.8, ls=(0, (4, 3)))
+            levels.append((mean + sign * k * std, f"{sign * k:+d}σ"))
+    if x.size:
+        i = int(np.argmax(np.abs(x - mean)))
+        ax.plot(t[i], x[i], "o", mfc="none", mec=OUTSIDE, ms=9, mew=1.4)
+        ax.annotate(
+            f"largest |x - mean|: {x[i]:+.3g} g ({abs(x[i] - mean) / std:.2f} σ)",
+            (t[i], x[i]), xytext=(12, -4 if x[i] < mean else 4), textcoords="offset points",
+            va="top" if x[i] < mean else "bottom", fontsize=8, color=OUTSIDE,
+        )
+        reach = max(abs(float(np.max(x) - mean)), abs(float(np.min(x) - mean)), 3.2 * std) * 1.12
+        ax.set_ylim(mean - reach, mean + reach)
+        ax.set_xlim(t[0], t[-1])
+    sigma_axis = ax.secondary_yaxis("right")
+    sigma_axis.set_yticks([v for v, _ in levels], labels=[label for _, label in levels])
+    sigma_axis.tick_params(labelsize=8, colors=INK, length=0)
+    sigma_axis.spines["right"].set_visible(False)
     ax.set_xlabel("time (s)")
     ax.set_ylabel("acceleration (g)")
-    ax.set_title(
-        f"{title or result.profile.name} | excerpt around the largest sample: {stats['largest_peak_sigma']:.2f} σ "
-        f"(peak {stats['peak']:.3g} g)",
-        fontsize=9.5, loc="left", color=INK,
+    _headings(
+        figure, ax, result, title,
+        f"excerpt around the largest sample: {stats['largest_peak_sigma']:.2f} σ (peak {stats['peak']:.3g} g, "
+        f"RMS {stats['rms']:.3g} g)",
     )
-    figure.tight_layout()
     return figure
 
 
 def rms_figure(result: Verification, title: str = "") -> Figure:
     """RMS of successive windows against the target g RMS and its tolerance (stationarity)."""
     figure = _figure(9.0, 4.2)
+    _margins(figure, bottom_in=0.9)
     ax = figure.add_subplot(1, 1, 1)
     _style(ax)
     target = result.grms_target
     tol = result.criteria.grms_tolerance_percent / 100.0
     values = np.asarray(result.window_rms_g)
-    starts = (np.arange(values.size) + 0.5) * result.window_s
+    offset_s = result.statistics["skipped_start_samples"] / result.statistics["rate_hz"]
+    starts = offset_s + (np.arange(values.size) + 0.5) * result.window_s
     ax.axhspan(target * (1 - tol), target * (1 + tol), color=BAND, alpha=0.85, lw=0,
                label=f"target ±{result.criteria.grms_tolerance_percent:g} %")
     ax.axhline(target, color=TARGET, lw=1.2, ls=(0, (6, 3)), label=f"target {target:.3g} g")
@@ -210,9 +268,11 @@ def rms_figure(result: Verification, title: str = "") -> Figure:
     ax.set_ylim(0, max(target * (1 + tol), values.max() if values.size else target) * 1.25)
     ax.set_xlabel("time (s)")
     ax.set_ylabel("RMS (g)")
-    ax.set_title(f"{title or result.profile.name} | RMS over time", fontsize=9.5, loc="left", color=INK)
-    ax.legend(frameon=False, fontsize=8, loc="lower right")
-    figure.tight_layout()
+    _headings(
+        figure, ax, result, title,
+        f"RMS over time: {result.grms_measured:.3g} g overall ({result.grms_error_percent:+.1f} % of target)",
+    )
+    _legend_below(figure, ax, ncol=3)
     return figure
 
 
@@ -242,7 +302,13 @@ def summary_figure(result: Verification, title: str = "", lines: tuple = ()) -> 
         f"{100 * d['asd']['fraction_within_tolerance']:.1f} % of {d['asd']['lines_judged']} judged lines in tolerance",
         f"  Welch: Hann, 50 % overlap, {d['asd']['segments']} segments, {d['asd']['dof']:.0f} dof, "
         f"resolution {d['asd']['resolution_hz']:g} Hz",
+        f"  {d['asd']['lines_near_edge_not_judged']} lines within {d['asd']['edge_exclusion_resolutions']:g} "
+        "resolution widths of a band edge: reported, not judged",
     ]
+    if d["asd"]["outside_ranges_hz"]:
+        body.append("  outside tolerance at " + ", ".join(
+            f"{lo:g} Hz" if lo == hi else f"{lo:g}-{hi:g} Hz" for lo, hi in d["asd"]["outside_ranges_hz"][:6]
+        ) + (" ..." if len(d["asd"]["outside_ranges_hz"]) > 6 else ""))
     if d["asd"]["dof_note"]:
         body.append("  note: " + d["asd"]["dof_note"])
     body += [
@@ -296,11 +362,19 @@ def write_report_figures(result: Verification, folder: str | os.PathLike, title:
     dict
         Name -> written path: ``asd``, ``amplitude``, ``excerpt``, ``rms`` (PNG), ``pdf``.
 
+    Raises
+    ------
+    InputError
+        When ``folder`` is not an existing folder.
+
     References
     ----------
     See the individual figure functions.
     """
     folder = Path(folder)
+    if not folder.is_dir():
+        raise InputError(f"report folder {str(folder)!r} does not exist or is not a folder; create it first",
+                         location="--report")
     builders = {
         "asd": asd_figure,
         "amplitude": amplitude_figure,

@@ -14,14 +14,20 @@ widths of a band edge where the target drops to zero (the Hann window's
 leakage there is not the record's fault; such lines are reported, not judged).
 When the record was asked for a kurtosis, skewness or crest factor, those are
 judged too.
+
+Everything in :meth:`Verification.to_dict` is plain JSON data: non-finite
+numbers (a line with no power at all reads -inf dB) are written as ``null``.
 """
 
 from __future__ import annotations
 
 import math
+import numbers
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import integrate
+from scipy.stats import chi2
 
 from synth.errors import InputError
 from synth.extremes import (
@@ -96,6 +102,31 @@ class Criteria:
                 f"fraction of lines within tolerance {self.min_fraction_within:g} must be in (0, 1]",
                 location="--min-fraction",
             )
+        if not (math.isfinite(self.edge_exclusion_resolutions) and self.edge_exclusion_resolutions >= 0):
+            raise InputError(
+                f"edge exclusion {self.edge_exclusion_resolutions:g} resolution widths must be a finite number >= 0",
+                location="edge_exclusion_resolutions",
+            )
+        for name, value in (
+            ("kurtosis_target", self.kurtosis_target),
+            ("crest_factor_limit", self.crest_factor_limit),
+        ):
+            if value is not None and not (math.isfinite(value) and value > 0):
+                raise InputError(f"{name} {value:g} must be a finite number > 0", location=name)
+        if self.skewness_target is not None and not math.isfinite(self.skewness_target):
+            raise InputError(f"skewness_target {self.skewness_target:g} must be a finite number", location="skewness_target")
+        for name, value in (
+            ("kurtosis_tolerance_percent", self.kurtosis_tolerance_percent),
+            ("skewness_tolerance", self.skewness_tolerance),
+            ("crest_factor_tolerance_percent", self.crest_factor_tolerance_percent),
+        ):
+            if not (math.isfinite(value) and value >= 0):
+                raise InputError(f"{name} {value:g} must be a finite number >= 0", location=name)
+
+    @property
+    def relaxed(self) -> bool:
+        """True when the ASD rule lets some judged lines lie outside the band."""
+        return self.min_fraction_within < 1
 
     def rule_text(self) -> dict:
         """The applied rule in words, per criterion."""
@@ -109,6 +140,11 @@ class Criteria:
                 f"{self.tolerance_low_db:+g}/{self.tolerance_high_db:+g} dB of the target (relaxed)"
             )
         rules = {
+            "verdict": (
+                "relaxed: pass when the relaxed ASD rule and every other criterion below hold"
+                if self.relaxed
+                else "default: pass when every criterion below holds"
+            ),
             "asd": asd_rule,
             "grms": f"measured g RMS within +/-{self.grms_tolerance_percent:g} % of the target",
             "judged_lines": (
@@ -159,6 +195,41 @@ class AsdComparison:
     max_deviation_db: float
     max_deviation_frequency_hz: float
     fraction_within_tolerance: float
+
+    @property
+    def outside_ranges_hz(self) -> tuple:
+        """Runs of adjacent judged lines outside the tolerance, as ``(first_hz, last_hz)`` pairs."""
+        bad = np.flatnonzero(self.judged & ~self.within)
+        if bad.size == 0:
+            return ()
+        breaks = np.flatnonzero(np.diff(bad) > 1)
+        starts = np.concatenate(([bad[0]], bad[breaks + 1]))
+        stops = np.concatenate((bad[breaks], [bad[-1]]))
+        f = self.frequencies_hz
+        return tuple((float(f[a]), float(f[b])) for a, b in zip(starts, stops))
+
+
+def _describe_ranges(ranges, most: int = 4) -> str:
+    parts = [f"{lo:g} Hz" if lo == hi else f"{lo:g}-{hi:g} Hz" for lo, hi in ranges[:most]]
+    if len(ranges) > most:
+        parts.append(f"and {len(ranges) - most} more ranges")
+    return ", ".join(parts)
+
+
+def _json_safe(value):
+    """Plain JSON data: numpy scalars to Python numbers, non-finite floats to None."""
+    if isinstance(value, dict):
+        return {str(k): _json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_json_safe(v) for v in value]
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, numbers.Integral):
+        return int(value)
+    if isinstance(value, numbers.Real):
+        value = float(value)
+        return value if math.isfinite(value) else None
+    return value
 
 
 def compare_asd(estimate: WelchEstimate, profile: AsdProfile, criteria: Criteria = Criteria()) -> AsdComparison:
@@ -282,11 +353,23 @@ class Verification:
         return 100.0 * (self.grms_measured / self.grms_target - 1.0)
 
     def to_dict(self) -> dict:
-        """The verification as plain data (the ``vibsynth verify --json`` contract)."""
+        """The verification as plain data (the ``vibsynth verify --json`` contract).
+
+        Every value is JSON-serialisable with ``allow_nan=False``: non-finite
+        numbers (e.g. a worst deviation of -inf dB on a line with no power)
+        are written as None.  ``asd.confidence_90_percent_db`` is the 90 %
+        chi-square interval of an interior line relative to its estimate, in dB
+        (it depends only on the degrees of freedom).
+        """
         c = self.comparison
-        lower, upper = self.estimate.confidence_limits(0.90)
+        nu = self.estimate.dof
+        # Bendat & Piersol: true/estimate lies in [nu/chi2(0.95, nu), nu/chi2(0.05, nu)] with 90 % probability.
+        confidence_db = [
+            10.0 * math.log10(nu / chi2.ppf(0.95, nu)),
+            10.0 * math.log10(nu / chi2.ppf(0.05, nu)),
+        ]
         judged = c.judged
-        return {
+        return _json_safe({
             "pass": bool(self.passed),
             "failed": list(self.failed),
             "reasons": list(self.reasons),
@@ -301,27 +384,43 @@ class Verification:
                 "max_deviation_db": c.max_deviation_db,
                 "max_deviation_frequency_hz": c.max_deviation_frequency_hz,
                 "fraction_within_tolerance": c.fraction_within_tolerance,
+                "min_fraction_within": self.criteria.min_fraction_within,
+                "outside_ranges_hz": [list(r) for r in c.outside_ranges_hz],
                 "lines_judged": int(np.count_nonzero(judged)),
                 "lines_within": int(np.count_nonzero(c.within)),
                 "lines_near_edge_not_judged": int(np.count_nonzero(c.edge)),
                 "dof": self.estimate.dof,
                 "segments": self.estimate.segments,
                 "resolution_hz": self.estimate.resolution_hz,
-                "confidence_90_percent_db": [
-                    float(10 * np.log10(lower[1] / self.estimate.asd[1])) if self.estimate.asd[1] > 0 else None,
-                    float(10 * np.log10(upper[1] / self.estimate.asd[1])) if self.estimate.asd[1] > 0 else None,
-                ],
+                "confidence_90_percent_db": confidence_db,
+                "edge_exclusion_resolutions": self.criteria.edge_exclusion_resolutions,
                 "dof_note": self.segment_message,
             },
             "statistics": dict(self.statistics),
-        }
+        })
 
 
 def _as_float_chunk(chunk) -> np.ndarray:
-    array = np.asarray(chunk, dtype=float)
-    if array.ndim != 1:
+    """A 1-D float array; a single column or row (shape (n, 1) or (1, n)) is accepted, more channels are not."""
+    array = np.asarray(chunk)
+    if np.iscomplexobj(array):
+        raise InputError("samples must be real numbers, got complex values", location="samples")
+    array = np.asarray(array, dtype=float)
+    if array.ndim == 2 and 1 in array.shape:
         array = array.reshape(-1)
+    if array.ndim != 1:
+        raise InputError(
+            f"the record must be one channel (a 1-D array), got an array of shape {array.shape}; "
+            "verify one channel at a time",
+            location="samples",
+        )
     return array
+
+
+def _check_skip(value, name: str) -> int:
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or int(value) < 0:
+        raise InputError(f"{name} must be a whole number of samples >= 0, got {value!r}", location=name)
+    return int(value)
 
 
 def verify_record(
@@ -367,6 +466,33 @@ def verify_record(
     Returns
     -------
     Verification
+        Verdict, reasons, the Welch estimate and its line-by-line comparison,
+        and ``statistics`` (all over the samples left after the skips):
+        ``rms``, ``mean``, ``std``, ``peak``, ``maximum``, ``minimum`` (g);
+        ``skewness``, ``kurtosis`` (Pearson), ``crest_factor`` (peak/rms);
+        ``samples``, ``duration_s`` (s), ``rate_hz`` (Hz); ``exceedance``
+        (fraction of samples with ``|x - mean| > k std`` against the Gaussian
+        ``2 (1 - Phi(k))``); ``zero_upcrossing_rate_hz`` (counted mean-level
+        up-crossings per s), ``zero_upcrossing_rate_rice_hz`` (Rice's
+        ``sqrt(m2/m0)`` of the target, continuous time) and
+        ``zero_upcrossing_rate_sampled_theory_hz`` (the same process sampled at
+        ``rate_hz``, see :func:`sampled_upcrossing_rate_hz`; this is what the
+        count should match); ``largest_peak_sigma`` (largest ``|x - mean|``
+        over ``std``) and ``davenport_expected_peak_sigma`` /
+        ``davenport_peak_std_sigma`` (Davenport's mean and standard deviation
+        of that largest absolute value for a Gaussian record with the target's
+        ``nu0`` and this duration, None when ``nu0 T <= 1``).  Since
+        ``max |x| > a`` when either ``x`` up-crosses ``a`` or ``-x`` does, and
+        both are Poisson streams of rate ``nu0 exp(-a^2/2)`` at high levels,
+        the two-sided largest value uses Davenport's formula with ``2 nu0 T``
+        crossings instead of ``nu0 T`` (about 0.15 sigma higher for
+        ``nu0 T`` of a few thousand).
+
+    Raises
+    ------
+    InputError
+        Bad rate, skips, samples (non-finite, several channels, constant, too
+        few for one Welch segment) or a band the resolution cannot judge.
 
     References
     ----------
@@ -375,10 +501,18 @@ def verify_record(
     up-crossing rate; Davenport, A. G. (1964), Proc. ICE 28, 187-196,
     expected largest peak.
     """
+    if isinstance(rate_hz, bool) or not isinstance(rate_hz, numbers.Real) or not (
+        math.isfinite(rate_hz) and rate_hz > 0
+    ):
+        raise InputError(f"rate {rate_hz!r} Hz must be a finite number > 0", location="--rate")
     if callable(chunks):
         source = chunks
-        if n_samples is None:
-            raise InputError("n_samples is required when the record is given as a chunk source", location="n_samples")
+        if isinstance(n_samples, bool) or not isinstance(n_samples, numbers.Integral) or int(n_samples) < 1:
+            raise InputError(
+                f"n_samples (the record's length in samples, >= 1) is required when the record is given as a "
+                f"chunk source, got {n_samples!r}",
+                location="n_samples",
+            )
         total = int(n_samples)
     else:
         array = _as_float_chunk(chunks)
@@ -387,10 +521,8 @@ def verify_record(
         def source():
             return (array,)
 
-    if not (math.isfinite(rate_hz) and rate_hz > 0):
-        raise InputError(f"rate {rate_hz!r} Hz must be a finite number > 0", location="--rate")
-    skip_start = max(0, int(skip_start_samples))
-    skip_end = max(0, int(skip_end_samples))
+    skip_start = _check_skip(skip_start_samples, "skip_start_samples")
+    skip_end = _check_skip(skip_end_samples, "skip_end_samples")
     steady = total - skip_start - skip_end
     if steady <= 0:
         raise InputError(
@@ -403,14 +535,16 @@ def verify_record(
             f"{profile.frequency_max_hz:g} Hz (needs a rate above {2 * profile.frequency_max_hz:g} Hz)",
             location="--rate",
         )
-    # Finest resolution considered: a quarter of the lowest band frequency, so the
-    # low edge gets several judged lines whenever the record allows.
+    # By default the finest resolution considered is an eighth of the lowest band
+    # frequency and a sixteenth of the band width (so a narrow band far from 0 Hz
+    # still gets judged lines); a longer record then buys more dof, not finer lines.
+    finest = min(profile.frequency_min_hz / 8.0, (profile.frequency_max_hz - profile.frequency_min_hz) / 16.0)
     choice = choose_nperseg(
         steady,
         rate_hz,
         resolution_hz=resolution_hz,
         target_dof=target_dof,
-        finest_resolution_hz=None if resolution_hz else max(profile.frequency_min_hz / 8.0, rate_hz / 2**20),
+        finest_resolution_hz=None if resolution_hz else max(finest, rate_hz / 2**20),
     )
 
     def steady_chunks():
@@ -490,7 +624,9 @@ def verify_record(
         "window_rms_max": max(first.window_rms) if first.window_rms else first.rms,
     }
     if nu0_theory * duration > 1.0:
-        # two-sided largest |x|: both tails cross, rate 2 nu0 (Davenport 1964 with doubled count)
+        # Largest |x - mean|: a level a is exceeded when x up-crosses a or -x does; at
+        # high levels both are Poisson streams of rate nu0 exp(-a^2/2), so the count in
+        # Davenport's (1964) formula doubles to 2 nu0 T.  nu0 is the target's (Rice).
         statistics["davenport_expected_peak_sigma"] = davenport_expected_largest_peak_sigma(2 * nu0_theory, duration)
         statistics["davenport_peak_std_sigma"] = davenport_largest_peak_std_sigma(2 * nu0_theory, duration)
     else:
@@ -503,8 +639,15 @@ def verify_record(
         failed.append("asd")
         reasons.append(
             f"ASD: {outside} of {int(np.count_nonzero(comparison.judged))} judged lines outside "
-            f"{criteria.tolerance_low_db:+g}/{criteria.tolerance_high_db:+g} dB; worst {comparison.max_deviation_db:+.2f} dB "
+            f"{criteria.tolerance_low_db:+g}/{criteria.tolerance_high_db:+g} dB (at "
+            f"{_describe_ranges(comparison.outside_ranges_hz)}); worst {comparison.max_deviation_db:+.2f} dB "
             f"at {comparison.max_deviation_frequency_hz:g} Hz"
+            + (
+                f"; {100 * comparison.fraction_within_tolerance:.1f} % within, at least "
+                f"{100 * criteria.min_fraction_within:g} % required"
+                if criteria.relaxed
+                else ""
+            )
         )
     error_percent = 100.0 * (first.rms / profile.grms - 1.0)
     if abs(error_percent) > criteria.grms_tolerance_percent:
@@ -577,8 +720,10 @@ def sampled_upcrossing_rate_hz(profile: AsdProfile, rate_hz: float) -> float:
     Analysis by Higher Order Crossings*, IEEE Press (zero-crossing rate of a
     sampled Gaussian process).
     """
-    from scipy import integrate
-
+    if isinstance(rate_hz, bool) or not isinstance(rate_hz, numbers.Real) or not (
+        math.isfinite(rate_hz) and rate_hz > 0
+    ):
+        raise InputError(f"rate {rate_hz!r} Hz must be a finite number > 0", location="rate_hz")
     lag_s = 1.0 / float(rate_hz)
     correlation = 0.0
     for f1, f2 in zip(profile.frequencies_hz[:-1], profile.frequencies_hz[1:]):
