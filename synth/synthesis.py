@@ -1,0 +1,1176 @@
+"""Gaussian drive synthesis: random-phase inverse FFT frames, periodic or overlap-added.
+
+A frame of N samples at rate ``fs`` has lines ``f_k = k fs / N``.  Giving line
+``0 < k < N/2`` the complex amplitude ``|X_k| = N sqrt(S(f_k) df / 2)``
+(``df = fs/N``) with a uniform random phase and taking numpy's ``irfft``
+makes a periodic frame whose variance is exactly ``sum S(f_k) df`` and whose
+periodogram equals ``S(f_k)`` at every line.  The DC and Nyquist lines carry
+nothing.
+
+Two ways to make a record of any length
+---------------------------------------
+``periodic``
+    One inverse FFT of the whole record (``N`` = record length): the finest
+    resolution there is, and the record loops seamlessly.  Used when the record
+    fits the memory budget (:data:`DEFAULT_MEMORY_BUDGET_BYTES`, estimated by
+    :func:`periodic_memory_bytes`), always for ``loop=True`` and for velocity
+    and displacement outputs (which must integrate exactly to each other; a
+    record beyond the budget is then refused with the longest duration that
+    fits).  Its randomness comes from the child ``spawn_key + (1,)`` of the
+    root :class:`numpy.random.SeedSequence`.
+``overlap-add``
+    Independent frames of ``N`` samples (``N`` a power of two chosen from the
+    profile's lowest frequency and narrowest segment, see
+    :func:`profile_resolution_hz`), each multiplied by the sine window
+    ``w[n] = sin(pi (n + 1/2) / N)``, laid every ``N/2`` samples with the first
+    frame starting at ``-N/2``, and summed.  Because ``w[n]^2 + w[n + N/2]^2 = 1``
+    the variance is the same at every sample, and every output sample is the
+    sum of exactly two frames.  Memory does not grow with duration.  Frame
+    ``j`` draws its randomness from its own child ``spawn_key + (0, j)`` of
+    the root seed sequence, so any frame (and any stretch of the record) can
+    be made alone.
+
+Either way the record is a deterministic function of (seed, plan): it does not
+depend on the chunk size it is read in, nor on where a read starts.
+
+Randomness per frame: one standard normal pair per line (``N + 2`` normals for
+a frame of ``N``).  ``amplitude="rayleigh"`` uses the pair as it is (complex
+Gaussian line: Rayleigh amplitude, uniform phase, a true Gaussian record);
+``amplitude="fixed"`` keeps only its direction (uniform phase, amplitude fixed
+by the target, an exact periodogram).  The two modes of one seed therefore
+share their phases.
+
+Generation works on a unit-variance Gaussian stream ``u`` whose spectrum has the
+shape of the plan's line spectrum; the output is ``output_scale * g(u)`` where
+``g`` is an optional memoryless transform applied after overlap-add (the hook
+for non-Gaussian drives), then the raised-cosine ramps.  Without a transform
+``output_scale = sqrt(sum S df)`` and the output spectrum is the line spectrum
+in physical units.
+
+References
+----------
+Shinozuka, M. & Jan, C.-M., "Digital simulation of random processes and its
+applications", Journal of Sound and Vibration 25(1), 1972 (spectral
+representation: random-phase sums of cosines).
+Allen, J. B., "Short term spectral analysis, synthesis, and modification by
+discrete Fourier transform", IEEE Trans. ASSP 25(3), 1977 (overlap-add with
+windows whose squares sum to one).
+Princen, J. P. & Bradley, A. B., "Analysis/synthesis filter bank design based
+on time domain aliasing cancellation", IEEE Trans. ASSP 34(5), 1986 (the sine
+window, ``w^2 + w_shifted^2 = 1``).
+Bendat, J. S. & Piersol, A. G., *Random Data*, 4th ed., Wiley 2010 (one-sided
+spectral density, integration in the frequency domain).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from functools import cached_property
+from typing import Callable, Iterator, Sequence
+
+import numpy as np
+import scipy.fft
+
+from synth.errors import InputError
+from synth.profile import STANDARD_GRAVITY_M_S2, AsdProfile
+
+#: Amplitude modes: ``fixed`` (random phase only; exact periodogram) and
+#: ``rayleigh`` (complex Gaussian lines; a true Gaussian realisation).
+AMPLITUDE_MODES = ("fixed", "rayleigh")
+
+#: The quantities a record can hold, and their units.
+QUANTITY_UNITS = {"acceleration": "g", "velocity": "m/s", "displacement": "m"}
+
+#: Generation modes (see the module docstring).
+MODES = ("periodic", "overlap-add")
+
+#: Working memory one periodic record may use (bytes) before overlap-add takes over.
+DEFAULT_MEMORY_BUDGET_BYTES = 256 * 2**20
+
+#: Frequency lines per feature: the frame resolution is the smaller of the lowest
+#: frequency and the narrowest segment divided by this (common practice, no source).
+LINES_PER_FEATURE = 8
+
+#: Shortest overlap-add frame (samples); shorter frames cost more per sample in overhead.
+MIN_FRAME_LENGTH = 8192
+
+#: Longest overlap-add frame (samples, about 170 MB of working memory).
+MAX_FRAME_LENGTH = 1 << 22
+
+#: Rates below this multiple of the top frequency get a warning (anti-alias
+#: margin; common practice, no source).
+RATE_MARGIN_FACTOR = 2.56
+
+#: Working bytes per sample of a periodic record: the spectrum (8), the record (8),
+#: the inverse FFT's scratch and allocator slack; peak RSS growth measured at 45
+#: bytes/sample for 2^23 samples (numpy 2.4, scipy 1.17).
+PERIODIC_BYTES_PER_SAMPLE = 48
+#: Extra bytes per sample for each velocity/displacement column (measured 16-20).
+PERIODIC_BYTES_PER_EXTRA_QUANTITY = 20
+
+_FRAME_STREAM = 0
+_PERIODIC_STREAM = 1
+
+
+# --------------------------------------------------------------------- seeds
+def root_seed_sequence(seed) -> np.random.SeedSequence:
+    """The root :class:`numpy.random.SeedSequence` of a record.
+
+    Parameters
+    ----------
+    seed : int, numpy.random.SeedSequence or numpy.random.Generator
+        An int (>= 0) is the entropy of the root sequence; a ``SeedSequence``
+        is used as it is; a ``Generator`` gives one integer in ``[0, 2**53)``
+        (advancing it) which becomes the entropy, so the record can be remade
+        from :func:`seed_entropy` of the result.
+
+    Returns
+    -------
+    numpy.random.SeedSequence
+
+    References
+    ----------
+    NumPy ``SeedSequence`` (O'Neill's seed mixing) and its ``spawn_key`` children.
+    """
+    if isinstance(seed, np.random.SeedSequence):
+        return seed
+    if isinstance(seed, np.random.Generator):
+        return np.random.SeedSequence(int(seed.integers(0, 2**53)))
+    if isinstance(seed, (bool, np.bool_)) or seed is None:
+        raise InputError(f"seed {seed!r} must be an integer >= 0, a SeedSequence or a numpy Generator", "seed")
+    try:
+        value = int(seed)
+    except (TypeError, ValueError):
+        raise InputError(f"seed {seed!r} must be an integer >= 0, a SeedSequence or a numpy Generator", "seed") from None
+    if value != seed or value < 0:
+        raise InputError(f"seed {seed!r} must be an integer >= 0", "seed")
+    return np.random.SeedSequence(value)
+
+
+def seed_entropy(sequence: np.random.SeedSequence) -> int:
+    """The integer entropy of a root seed sequence (what a sidecar records as ``seed``)."""
+    entropy = sequence.entropy
+    if isinstance(entropy, (list, tuple, np.ndarray)):
+        raise InputError("a seed sequence with a list of entropy words cannot be recorded as one seed; pass an int", "seed")
+    return int(entropy)
+
+
+def _child(root: np.random.SeedSequence, *key: int) -> np.random.Generator:
+    sequence = np.random.SeedSequence(root.entropy, spawn_key=tuple(root.spawn_key) + tuple(key))
+    return np.random.default_rng(sequence)
+
+
+# ------------------------------------------------------------------- frames
+def line_amplitudes(line_spectrum, rate_hz: float, frame_length: int) -> np.ndarray:
+    """Line magnitudes ``|X_k| = N sqrt(S(f_k) df / 2)`` for numpy's ``irfft`` (backward norm).
+
+    Parameters
+    ----------
+    line_spectrum : array_like, shape (N//2 + 1,)
+        One-sided spectral density at ``f_k = k rate_hz / N`` in U^2/Hz (e.g. g^2/Hz).
+        The DC and (for even N) Nyquist lines are ignored (set to 0).
+    rate_hz : float
+        Sample rate in Hz.
+    frame_length : int
+        Frame length N in samples.
+
+    Returns
+    -------
+    numpy.ndarray, shape (N//2 + 1,)
+        Magnitudes in U (times N), zero at DC and Nyquist.
+
+    References
+    ----------
+    Shinozuka & Jan (1972), spectral representation; the discrete Parseval
+    relation of the DFT.
+    """
+    spectrum = _clean_line_spectrum(line_spectrum, frame_length)
+    df = float(rate_hz) / frame_length
+    return frame_length * np.sqrt(spectrum * df / 2.0)
+
+
+def _clean_line_spectrum(line_spectrum, frame_length: int) -> np.ndarray:
+    spectrum = np.array(line_spectrum, dtype=float).ravel()
+    if spectrum.size != frame_length // 2 + 1:
+        raise InputError(
+            f"line spectrum has {spectrum.size} values; a frame of {frame_length} samples needs {frame_length // 2 + 1}",
+            "line_spectrum",
+        )
+    if not math.isfinite(float(np.sum(spectrum))) or float(np.min(spectrum)) < 0:
+        raise InputError("line spectrum values must be finite and >= 0", "line_spectrum")
+    spectrum[0] = 0.0
+    if frame_length % 2 == 0:
+        spectrum[-1] = 0.0
+    return spectrum
+
+
+def _band_of(amplitudes: np.ndarray) -> tuple[int, int]:
+    """Index range [lo, hi) holding every non-zero line."""
+    nonzero = np.flatnonzero(amplitudes)
+    if nonzero.size == 0:
+        return 0, 0
+    return int(nonzero[0]), int(nonzero[-1]) + 1
+
+
+def _draw_lines(rng: np.random.Generator, amplitudes: np.ndarray, amplitude: str, band=None) -> np.ndarray:
+    """Complex line values: a normal pair per line, scaled (rayleigh) or normalised (fixed).
+
+    Every line draws its pair (so the draws do not depend on the spectrum);
+    only lines inside ``band`` (the non-zero amplitudes) are then shaped.
+    """
+    spectrum = np.empty(amplitudes.size, dtype=np.complex128)
+    rng.standard_normal(out=spectrum.view(np.float64))
+    lo, hi = _band_of(amplitudes) if band is None else band
+    spectrum[:lo] = 0.0
+    spectrum[hi:] = 0.0
+    part = spectrum[lo:hi]
+    weights = amplitudes[lo:hi]
+    if amplitude == "rayleigh":
+        part *= weights * math.sqrt(0.5)
+        return spectrum
+    magnitude = np.abs(part)
+    zero = magnitude == 0.0
+    if np.any(zero):  # probability zero; a phase of 0 keeps the amplitude exact
+        part[zero] = 1.0
+        magnitude[zero] = 1.0
+    np.divide(weights, magnitude, out=magnitude)
+    part *= magnitude
+    return spectrum
+
+
+def synthesize_frame(line_spectrum, rate_hz: float, rng: np.random.Generator, amplitude: str = "fixed") -> np.ndarray:
+    """One periodic random-phase frame whose spectrum is ``line_spectrum``.
+
+    Parameters
+    ----------
+    line_spectrum : array_like, shape (N//2 + 1,)
+        One-sided spectral density in U^2/Hz at ``f_k = k rate_hz / N``,
+        ``k = 0 .. N//2``; N is ``2 (len - 1)``.  DC and Nyquist are ignored.
+    rate_hz : float
+        Sample rate in Hz.
+    rng : numpy.random.Generator
+        Source of the phases (and amplitudes): ``N + 2`` standard normals.
+    amplitude : {"fixed", "rayleigh"}
+        ``fixed``: ``|X_k| = N sqrt(S df / 2)`` exactly, uniform phase; the
+        frame's variance is exactly ``sum S(f_k) df`` and its periodogram is
+        ``S(f_k)`` at every line.  ``rayleigh``: complex Gaussian lines with
+        that RMS magnitude (a Gaussian realisation; variance equal in expectation).
+
+    Returns
+    -------
+    numpy.ndarray, shape (N,)
+        The frame in U (e.g. g).
+
+    References
+    ----------
+    Shinozuka & Jan (1972); numpy/scipy ``irfft`` normalisation (backward:
+    ``x_n = (1/N) sum_k X_k exp(2 pi i k n / N)``).
+    """
+    amplitude = _check_choice(amplitude, AMPLITUDE_MODES, "amplitude")
+    spectrum = np.asarray(line_spectrum, dtype=float)
+    frame_length = 2 * (spectrum.size - 1)
+    if frame_length < 2:
+        raise InputError("line spectrum needs at least two values", "line_spectrum")
+    amplitudes = line_amplitudes(spectrum, rate_hz, frame_length)
+    lines = _draw_lines(rng, amplitudes, amplitude)
+    return scipy.fft.irfft(lines, n=frame_length, overwrite_x=True)
+
+
+def sine_window(frame_length: int) -> np.ndarray:
+    """The sine window ``w[n] = sin(pi (n + 1/2) / N)``; ``w[n]^2 + w[n + N/2]^2 = 1``.
+
+    Parameters
+    ----------
+    frame_length : int
+        N, even.
+
+    Returns
+    -------
+    numpy.ndarray, shape (N,)
+        Window values (dimensionless).
+
+    References
+    ----------
+    Princen & Bradley (1986), the sine window for 50 % overlap (power complementary).
+    """
+    n = np.arange(frame_length, dtype=float)
+    return np.sin(np.pi * (n + 0.5) / frame_length)
+
+
+def raised_cosine_ramp(length_samples: int) -> np.ndarray:
+    """Fade-in factors ``0.5 (1 - cos(pi n / R))``, ``n = 0 .. R-1``: 0 at the first sample, rising to 1.
+
+    Parameters
+    ----------
+    length_samples : int
+        R, the ramp length in samples.
+
+    Returns
+    -------
+    numpy.ndarray, shape (R,)
+        Factors (dimensionless); reverse them for the fade-out.
+
+    References
+    ----------
+    Raised-cosine (Hann) taper, Blackman & Tukey, *The Measurement of Power
+    Spectra*, Dover 1958.
+    """
+    n = np.arange(int(length_samples), dtype=float)
+    return 0.5 * (1.0 - np.cos(np.pi * n / max(int(length_samples), 1)))
+
+
+# ----------------------------------------------------------- frame length
+def profile_resolution_hz(profile: AsdProfile) -> float:
+    """Frequency resolution (Hz) a profile needs: min(lowest frequency, narrowest segment) / 8.
+
+    Eight lines per feature keep the lowest frequency and the narrowest notch
+    or peak resolved after the overlap-add window smooths the spectrum by about
+    1.5 lines (common practice, no source).
+
+    Parameters
+    ----------
+    profile : AsdProfile
+
+    Returns
+    -------
+    float
+        Resolution in Hz.
+
+    References
+    ----------
+    Bendat & Piersol (2010): resolution bandwidth must be narrow against the
+    spectral features to be resolved.
+    """
+    widths = np.diff(profile.frequencies_hz)
+    return float(min(profile.frequency_min_hz, float(np.min(widths)))) / LINES_PER_FEATURE
+
+
+def choose_frame_length(rate_hz: float, resolution_hz: float) -> int:
+    """Overlap-add frame length: the smallest power of two N >= 8192 with ``rate_hz / N <= resolution_hz``.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate in Hz.
+    resolution_hz : float
+        Largest acceptable line spacing in Hz.
+
+    Returns
+    -------
+    int
+        N in samples.
+
+    References
+    ----------
+    DFT line spacing ``df = fs / N`` (Bendat & Piersol 2010).
+    """
+    needed = max(MIN_FRAME_LENGTH, math.ceil(float(rate_hz) / float(resolution_hz) - 1e-9))
+    return 1 << (needed - 1).bit_length()
+
+
+def periodic_memory_bytes(total_samples: int, quantity_count: int = 1) -> int:
+    """Estimated working memory (bytes) of one periodic record of ``total_samples`` samples.
+
+    Parameters
+    ----------
+    total_samples : int
+        Record length in samples.
+    quantity_count : int
+        Number of columns (acceleration, velocity, displacement).
+
+    Returns
+    -------
+    int
+        Bytes (an estimate measured with peak RSS; see :data:`PERIODIC_BYTES_PER_SAMPLE`).
+
+    References
+    ----------
+    Measured for this implementation (no published source).
+    """
+    per_sample = PERIODIC_BYTES_PER_SAMPLE + PERIODIC_BYTES_PER_EXTRA_QUANTITY * (int(quantity_count) - 1)
+    return int(total_samples) * per_sample
+
+
+# ---------------------------------------------------------------------- plan
+@dataclass(frozen=True, eq=False)
+class SynthesisPlan:
+    """Everything that, with a seed, determines a record sample by sample.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate in Hz.
+    total_samples : int
+        Record length in samples.
+    frame_length : int
+        N: the record length in ``periodic`` mode; the (even) frame length in
+        ``overlap-add`` mode.
+    line_spectrum : numpy.ndarray, shape (N//2 + 1,)
+        One-sided spectral density on the frame grid ``f_k = k rate_hz / N``
+        (any unit U^2/Hz; only its shape matters when ``output_scale`` is given
+        separately).  DC and Nyquist are set to 0.  For non-Gaussian drives
+        this is the compensated Gaussian spectrum.
+    mode : {"periodic", "overlap-add"}
+    amplitude : {"fixed", "rayleigh"}
+    transform : callable or None
+        Memoryless ``y = g(u)`` applied to the unit-variance Gaussian stream
+        after overlap-add (float64 array in, same-shape float64 array out).
+    output_scale : float or None
+        Physical units (g) per unit of ``g(u)``; None: ``sqrt(sum S df)`` (the
+        Gaussian record then has the line spectrum in physical units).
+    quantities : tuple of str
+        Columns, from ``acceleration`` (g), ``velocity`` (m/s), ``displacement`` (m);
+        velocity and displacement need ``periodic`` mode and no transform.
+    ramp_in_samples, ramp_out_samples : int
+        Raised-cosine fade-in/out lengths in samples.
+    warnings : tuple of str
+        Advisory messages found while planning (e.g. a thin anti-alias margin).
+
+    References
+    ----------
+    See the module docstring.
+    """
+
+    rate_hz: float
+    total_samples: int
+    frame_length: int
+    line_spectrum: np.ndarray
+    mode: str = "overlap-add"
+    amplitude: str = "fixed"
+    transform: Callable[[np.ndarray], np.ndarray] | None = None
+    output_scale: float | None = None
+    quantities: tuple = ("acceleration",)
+    ramp_in_samples: int = 0
+    ramp_out_samples: int = 0
+    warnings: tuple = field(default=())
+
+    def __post_init__(self):
+        object.__setattr__(self, "mode", _check_choice(self.mode, MODES, "mode"))
+        object.__setattr__(self, "amplitude", _check_choice(self.amplitude, AMPLITUDE_MODES, "amplitude"))
+        rate = float(self.rate_hz)
+        if not (math.isfinite(rate) and rate > 0):
+            raise InputError(f"rate {self.rate_hz!r} Hz must be a finite number > 0", "rate")
+        total, frame = int(self.total_samples), int(self.frame_length)
+        if total < 2:
+            raise InputError(f"a record needs at least 2 samples, got {total}", "duration")
+        if self.mode == "periodic" and frame != total:
+            raise InputError(f"a periodic plan's frame length ({frame}) must equal its record length ({total})", "frame_length")
+        if self.mode == "overlap-add" and (frame < 2 or frame % 2):
+            raise InputError(f"an overlap-add frame length must be even and >= 2, got {frame}", "frame_length")
+        spectrum = _clean_line_spectrum(self.line_spectrum, frame)
+        if not np.sum(spectrum) > 0:
+            raise InputError("no frequency line with a non-zero spectrum falls on the frame grid; use a finer resolution", "line_spectrum")
+        spectrum.setflags(write=False)
+        quantities = tuple(self.quantities)
+        if not quantities or len(set(quantities)) != len(quantities):
+            raise InputError(f"quantities {quantities!r} must be a non-empty list without repeats", "quantities")
+        for quantity in quantities:
+            _check_choice(quantity, tuple(QUANTITY_UNITS), "quantities")
+        if quantities != ("acceleration",) and quantities[0] != "acceleration":
+            raise InputError("the first quantity must be acceleration", "quantities")
+        if len(quantities) > 1 and (self.mode != "periodic" or self.transform is not None):
+            raise InputError(
+                "velocity and displacement columns need a periodic Gaussian record (no transform) so that they integrate exactly",
+                "quantities",
+            )
+        ramp_in, ramp_out = int(self.ramp_in_samples), int(self.ramp_out_samples)
+        if ramp_in < 0 or ramp_out < 0 or ramp_in + ramp_out > total:
+            raise InputError(
+                f"ramps of {ramp_in} + {ramp_out} samples do not fit a record of {total} samples", "ramp"
+            )
+        scale = self.output_scale
+        if scale is None:
+            scale = math.sqrt(float(np.sum(spectrum)) * rate / frame)
+        scale = float(scale)
+        if not (math.isfinite(scale) and scale > 0):
+            raise InputError(f"output scale {self.output_scale!r} must be a finite number > 0", "output_scale")
+        object.__setattr__(self, "rate_hz", rate)
+        object.__setattr__(self, "total_samples", total)
+        object.__setattr__(self, "frame_length", frame)
+        object.__setattr__(self, "line_spectrum", spectrum)
+        object.__setattr__(self, "output_scale", scale)
+        object.__setattr__(self, "quantities", quantities)
+        object.__setattr__(self, "ramp_in_samples", ramp_in)
+        object.__setattr__(self, "ramp_out_samples", ramp_out)
+        object.__setattr__(self, "warnings", tuple(self.warnings))
+
+    # ---------------------------------------------------------- geometry
+    @property
+    def resolution_hz(self) -> float:
+        """Line spacing of the frame grid, ``rate_hz / frame_length`` (Hz)."""
+        return self.rate_hz / self.frame_length
+
+    @property
+    def frequencies_hz(self) -> np.ndarray:
+        """Frame grid ``k rate_hz / N`` for ``k = 0 .. N//2`` (Hz)."""
+        return np.arange(self.frame_length // 2 + 1) * self.resolution_hz
+
+    @property
+    def duration_s(self) -> float:
+        """Record duration ``total_samples / rate_hz`` (s)."""
+        return self.total_samples / self.rate_hz
+
+    @property
+    def hop(self) -> int:
+        """Overlap-add hop, N/2 samples."""
+        return self.frame_length // 2
+
+    @property
+    def line_variance(self) -> float:
+        """``sum S(f_k) df`` over the frame grid, in U^2 (the Gaussian record's variance)."""
+        return float(np.sum(self.line_spectrum)) * self.resolution_hz
+
+    @property
+    def frame_count(self) -> int:
+        """Number of frames: 1 (periodic) or ``ceil(total / hop) + 1`` (overlap-add)."""
+        if self.mode == "periodic":
+            return 1
+        return -(-self.total_samples // self.hop) + 1
+
+    @property
+    def steady_range(self) -> tuple[int, int]:
+        """Sample range ``[start, stop)`` between the ramps."""
+        return self.ramp_in_samples, self.total_samples - self.ramp_out_samples
+
+    @cached_property
+    def _stream_amplitudes(self) -> np.ndarray:
+        # Magnitudes for irfft(norm="forward"): sqrt(S_k / (2 sum S)) gives a unit-variance
+        # stream; without a transform the physical scale is folded in as well.
+        factor = 1.0 / (2.0 * float(np.sum(self.line_spectrum)))
+        if self.transform is None:
+            factor *= self.output_scale**2
+        amplitudes = self.line_spectrum * factor
+        np.sqrt(amplitudes, out=amplitudes)
+        return amplitudes
+
+    @cached_property
+    def _band(self) -> tuple[int, int]:
+        return _band_of(self.line_spectrum)
+
+    @cached_property
+    def _window(self) -> np.ndarray:
+        return sine_window(self.frame_length)
+
+    def to_dict(self) -> dict:
+        """The plan's settings as plain data (for a sidecar)."""
+        return {
+            "mode": self.mode,
+            "frame_length": self.frame_length,
+            "resolution_hz": self.resolution_hz,
+            "amplitude": self.amplitude,
+            "rate": self.rate_hz,
+            "samples": self.total_samples,
+            "duration_s": self.duration_s,
+            "quantities": list(self.quantities),
+            "ramp_in_s": self.ramp_in_samples / self.rate_hz,
+            "ramp_out_s": self.ramp_out_samples / self.rate_hz,
+            "output_scale": self.output_scale,
+            "line_variance": self.line_variance,
+            "transform": None if self.transform is None else getattr(self.transform, "__name__", "custom"),
+        }
+
+
+def _check_choice(value, allowed: Sequence[str], what: str) -> str:
+    text = str(value).strip().lower()
+    if text not in allowed:
+        raise InputError(f"{what} {value!r} is not one of {', '.join(allowed)}", what)
+    return text
+
+
+def parse_quantities(quantities) -> tuple[tuple[str, ...], bool]:
+    """Quantity names from a string (``"accel,velocity"``) or a sequence.
+
+    Parameters
+    ----------
+    quantities : str or sequence of str
+        Names or short forms (accel/acc, vel, disp).
+
+    Returns
+    -------
+    (tuple of str, bool)
+        The full names, and whether a single name was given as a string
+        (the library then returns 1-D arrays).
+
+    References
+    ----------
+    None (argument parsing).
+    """
+    aliases = {"accel": "acceleration", "acc": "acceleration", "vel": "velocity", "disp": "displacement"}
+    single = isinstance(quantities, str) and "," not in quantities
+    items = [quantities] if single else (quantities.split(",") if isinstance(quantities, str) else list(quantities))
+    names = []
+    for item in items:
+        name = str(item).strip().lower()
+        name = aliases.get(name, name)
+        if name not in QUANTITY_UNITS:
+            raise InputError(
+                f"quantity {item!r} is not one of acceleration, velocity, displacement", "quantities"
+            )
+        names.append(name)
+    return tuple(names), single
+
+
+def plan_synthesis(
+    profile: AsdProfile,
+    duration_s: float,
+    rate_hz: float,
+    *,
+    amplitude: str = "fixed",
+    resolution_hz: float | None = None,
+    loop: bool = False,
+    ramp_in_s: float = 0.0,
+    ramp_out_s: float = 0.0,
+    quantities=("acceleration",),
+    memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES,
+    spectrum: Callable[[np.ndarray], np.ndarray] | None = None,
+    transform: Callable[[np.ndarray], np.ndarray] | None = None,
+    output_scale: float | None = None,
+) -> SynthesisPlan:
+    """Check the request against the profile and plan the record.
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        The target (g^2/Hz); sets the band, the resolution and, unless
+        ``spectrum`` is given, the line spectrum.
+    duration_s : float
+        Record duration in s (rounded to whole samples).
+    rate_hz : float
+        Sample rate in Hz; must exceed twice the profile's top frequency
+        (a rate below 2.56 times it adds a warning).
+    amplitude : {"fixed", "rayleigh"}
+        See :func:`synthesize_frame`.
+    resolution_hz : float, optional
+        Largest line spacing in Hz (default :func:`profile_resolution_hz`).
+        Sets the overlap-add frame length and the shortest record (1/resolution).
+    loop : bool
+        Make one periodic record that repeats seamlessly (no ramps).
+    ramp_in_s, ramp_out_s : float
+        Raised-cosine fade-in and fade-out in s (0: none).
+    quantities : sequence of str or str
+        Columns: acceleration (g), velocity (m/s), displacement (m);
+        acceleration first.
+    memory_budget_bytes : int
+        Working memory a periodic record may use; longer records use overlap-add.
+    spectrum : callable, optional
+        One-sided density (U^2/Hz) as a function of frequency (Hz) to sample on
+        the frame grid instead of ``profile.evaluate`` (e.g. a compensated
+        Gaussian spectrum for a non-Gaussian drive).
+    transform : callable, optional
+        Memoryless transform of the unit-variance Gaussian stream (see
+        :class:`SynthesisPlan`).
+    output_scale : float, optional
+        Physical g per unit of the transformed stream (default ``sqrt(sum S df)``).
+
+    Returns
+    -------
+    SynthesisPlan
+
+    Raises
+    ------
+    InputError
+        Rate at or below twice the top frequency, a record shorter than one
+        frame at the needed resolution (the message names the minimum), ramps
+        longer than the record, a loop or velocity/displacement record beyond
+        the memory budget (the message names the longest that fits).
+
+    References
+    ----------
+    Nyquist-Shannon sampling theorem (rate > 2 f_max); DFT resolution
+    ``df = fs / N`` (Bendat & Piersol 2010).
+    """
+    names, _ = parse_quantities(quantities)
+    rate = _positive(rate_hz, "rate", "Hz")
+    duration = _positive(duration_s, "duration", "s")
+    top = profile.frequency_max_hz
+    warnings: list[str] = []
+    if rate <= 2.0 * top:
+        raise InputError(
+            f"rate {rate:g} Hz must exceed twice the profile's top frequency (2 x {top:g} = {2 * top:g} Hz); "
+            f"use at least {RATE_MARGIN_FACTOR:g} x {top:g} = {RATE_MARGIN_FACTOR * top:g} Hz",
+            "rate",
+        )
+    if rate < RATE_MARGIN_FACTOR * top:
+        warnings.append(
+            f"rate {rate:g} Hz is below {RATE_MARGIN_FACTOR:g} x the top frequency ({RATE_MARGIN_FACTOR * top:g} Hz); "
+            "anti-alias filters usually need that margin (common practice)"
+        )
+    needed = profile_resolution_hz(profile)
+    if resolution_hz is None:
+        resolution = needed
+    else:
+        resolution = _positive(resolution_hz, "resolution", "Hz")
+        if resolution > needed * (1 + 1e-9):
+            warnings.append(
+                f"resolution {resolution:g} Hz is coarser than the {needed:.4g} Hz the profile needs "
+                "(lowest frequency and narrowest segment / 8); low-frequency and narrow features may be smeared"
+            )
+    total = int(round(duration * rate))
+    minimum = math.ceil(rate / resolution - 1e-9)
+    if total < minimum:
+        raise InputError(
+            f"duration {duration:g} s is too short for one frame at {resolution:.4g} Hz resolution "
+            f"(lowest frequency {profile.frequency_min_hz:g} Hz); give at least {minimum / rate:.6g} s",
+            "duration",
+        )
+    ramp_in = _ramp_samples(ramp_in_s, rate, "ramp")
+    ramp_out = _ramp_samples(ramp_out_s, rate, "ramp")
+    if loop and (ramp_in or ramp_out):
+        raise InputError("a looped record repeats seamlessly and cannot have ramps; drop the ramp or the loop", "ramp")
+    if len(names) > 1 and (ramp_in or ramp_out):
+        raise InputError(
+            "ramps apply to acceleration drives; with velocity/displacement columns a ramped record would no longer "
+            "integrate exactly; drop the ramp",
+            "ramp",
+        )
+    if ramp_in + ramp_out > total:
+        raise InputError(
+            f"ramps of {ramp_in / rate:g} s + {ramp_out / rate:g} s are longer than the {total / rate:g} s record", "ramp"
+        )
+    budget = int(memory_budget_bytes)
+    if budget <= 0:
+        raise InputError(f"memory budget {memory_budget_bytes!r} bytes must be > 0", "memory budget")
+    needs_periodic = loop or len(names) > 1
+    fits = periodic_memory_bytes(total, len(names)) <= budget
+    if needs_periodic and not fits:
+        longest = budget // periodic_memory_bytes(1, len(names))
+        why = "a looped record" if loop else "velocity/displacement columns"
+        raise InputError(
+            f"{why} need the whole record in memory: {total} samples need about "
+            f"{periodic_memory_bytes(total, len(names)) / 2**20:.0f} MB, above the "
+            f"{budget / 2**20:.0f} MB budget; give at most {longest / rate:.6g} s or a larger memory budget",
+            "duration",
+        )
+    if fits or needs_periodic:
+        mode, frame = "periodic", total
+    else:
+        mode, frame = "overlap-add", choose_frame_length(rate, resolution)
+        if frame > total:  # a record shorter than one frame (tiny budgets): one periodic record
+            mode, frame = "periodic", total
+        if frame > MAX_FRAME_LENGTH:
+            raise InputError(
+                f"a frame of {frame} samples ({rate:g} Hz / {resolution:.4g} Hz) is longer than "
+                f"{MAX_FRAME_LENGTH} samples; use a coarser resolution (at least {rate / MAX_FRAME_LENGTH:.4g} Hz)",
+                "resolution",
+            )
+    df = rate / frame
+    lines = frame // 2 + 1
+    if spectrum is None:
+        # Only lines inside the band are non-zero: evaluate those (plus a line of margin).
+        lo = max(int(math.floor(profile.frequency_min_hz / df)) - 1, 0)
+        hi = min(int(math.ceil(top / df)) + 2, lines)
+        values = np.zeros(lines)
+        values[lo:hi] = profile.evaluate(np.arange(lo, hi) * df)
+    else:
+        values = np.asarray(spectrum(np.arange(lines) * df), dtype=float)
+        if values.shape != (lines,):
+            raise InputError(f"spectrum returned shape {values.shape}; expected {(lines,)}", "spectrum")
+    first_inside = math.ceil(profile.frequency_min_hz / df - 1e-9)
+    if first_inside * df > top or first_inside >= lines - (frame % 2 == 0):
+        raise InputError(
+            f"no frequency line of the {rate / frame:.4g} Hz grid falls inside the band "
+            f"{profile.frequency_min_hz:g}-{top:g} Hz; use a finer resolution",
+            "resolution",
+        )
+    return SynthesisPlan(
+        rate_hz=rate,
+        total_samples=total,
+        frame_length=frame,
+        line_spectrum=values,
+        mode=mode,
+        amplitude=amplitude,
+        transform=transform,
+        output_scale=output_scale,
+        quantities=names,
+        ramp_in_samples=ramp_in,
+        ramp_out_samples=ramp_out,
+        warnings=tuple(warnings),
+    )
+
+
+def _positive(value, what: str, unit: str) -> float:
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} {value!r} must be a number > 0 ({unit})", what) from None
+    if not (math.isfinite(number) and number > 0):
+        raise InputError(f"{what} {value!r} {unit} must be a finite number > 0", what)
+    return number
+
+
+def _ramp_samples(ramp_s, rate: float, what: str) -> int:
+    try:
+        seconds = float(ramp_s or 0.0)
+    except (TypeError, ValueError):
+        raise InputError(f"{what} {ramp_s!r} must be a number of seconds >= 0", what) from None
+    if not (math.isfinite(seconds) and seconds >= 0):
+        raise InputError(f"{what} {ramp_s!r} s must be a finite number >= 0", what)
+    return int(round(seconds * rate))
+
+
+# ------------------------------------------------------------- synthesizer
+class Synthesizer:
+    """Makes the samples of one planned record from one seed, in any order of chunks.
+
+    Parameters
+    ----------
+    plan : SynthesisPlan
+    seed : int, numpy.random.SeedSequence or numpy.random.Generator
+        See :func:`root_seed_sequence`.
+
+    Notes
+    -----
+    A periodic record is computed once (on first use) and kept; an
+    overlap-add record is computed frame by frame on every pass, two frames
+    alive at a time.
+
+    References
+    ----------
+    See the module docstring.
+    """
+
+    def __init__(self, plan: SynthesisPlan, seed):
+        self.plan = plan
+        self.root = root_seed_sequence(seed)
+        self._record: np.ndarray | None = None
+
+    @property
+    def seed(self) -> int:
+        """The integer seed that remakes this record (root entropy)."""
+        return seed_entropy(self.root)
+
+    # ------------------------------------------------------------ frames
+    def frame_lines(self, index: int) -> np.ndarray:
+        """Complex lines of overlap-add frame ``index`` (or of the periodic record, index 0).
+
+        Scaled for ``irfft(norm="forward")``; in g when the plan has no
+        transform, else for a unit-variance stream.
+        """
+        plan = self.plan
+        if plan.mode == "periodic":
+            rng = _child(self.root, _PERIODIC_STREAM)
+        else:
+            rng = _child(self.root, _FRAME_STREAM, int(index))
+        return _draw_lines(rng, plan._stream_amplitudes, plan.amplitude, plan._band)
+
+    def frame(self, index: int) -> np.ndarray:
+        """Unwindowed periodic frame ``index`` (samples), before transform, scale and ramps."""
+        return scipy.fft.irfft(self.frame_lines(index), n=self.plan.frame_length, norm="forward", overwrite_x=True)
+
+    def _windowed_frame(self, index: int) -> np.ndarray:
+        frame = self.frame(index)
+        frame *= self.plan._window
+        return frame
+
+    # ------------------------------------------------------------ record
+    def _periodic_record(self) -> np.ndarray:
+        if self._record is None:
+            plan = self.plan
+            lines = self.frame_lines(0)
+            total = plan.total_samples
+            if len(plan.quantities) == 1:
+                columns = scipy.fft.irfft(lines, n=total, norm="forward", overwrite_x=True).reshape(total, 1)
+            else:
+                columns = np.empty((total, len(plan.quantities)))
+                omega = 2.0 * np.pi * plan.frequencies_hz[1:]
+                for position, quantity in enumerate(plan.quantities[1:], start=1):
+                    # Integration in the frequency domain: divide by (i 2 pi f), times g0 for m/s and m.
+                    integrated = np.zeros_like(lines)
+                    if quantity == "velocity":
+                        integrated[1:] = lines[1:] * STANDARD_GRAVITY_M_S2 / (1j * omega)
+                    else:
+                        integrated[1:] = lines[1:] * (-STANDARD_GRAVITY_M_S2 / omega**2)
+                    columns[:, position] = scipy.fft.irfft(integrated, n=total, norm="forward", overwrite_x=True)
+                    del integrated
+                columns[:, 0] = scipy.fft.irfft(lines, n=total, norm="forward", overwrite_x=True)
+            del lines
+            self._finish(columns, 0)
+            self._record = columns
+        return self._record
+
+    def _iter_blocks(self, first_block: int, last_block: int) -> Iterator[np.ndarray]:
+        hop = self.plan.hop
+        previous = self._windowed_frame(first_block)
+        for block in range(first_block, last_block + 1):
+            following = self._windowed_frame(block + 1)
+            out = previous[hop:]
+            out += following[:hop]
+            yield out
+            previous = following
+
+    def _finish(self, columns: np.ndarray, start: int) -> None:
+        """Transform, scale and ramp (in place) a stretch of columns that starts at sample ``start``."""
+        plan = self.plan
+        if plan.transform is not None:
+            transformed = np.asarray(plan.transform(columns[:, 0]), dtype=float)
+            if transformed.shape != columns[:, 0].shape:
+                raise InputError(f"transform returned shape {transformed.shape}; expected {columns[:, 0].shape}", "transform")
+            columns[:, 0] = transformed * plan.output_scale
+        stop = start + columns.shape[0]
+        ramp_in, ramp_out, total = plan.ramp_in_samples, plan.ramp_out_samples, plan.total_samples
+        if ramp_in and start < ramp_in:
+            hi = min(stop, ramp_in)
+            columns[: hi - start] *= raised_cosine_ramp(ramp_in)[start:hi, None]
+        if ramp_out and stop > total - ramp_out:
+            lo = max(start, total - ramp_out)
+            factors = raised_cosine_ramp(ramp_out)[::-1]
+            columns[lo - start :] *= factors[lo - (total - ramp_out) : stop - (total - ramp_out), None]
+
+    def _iter_columns(self, chunk_samples: int, start: int, stop: int) -> Iterator[np.ndarray]:
+        plan = self.plan
+        if plan.mode == "periodic":
+            record = self._periodic_record()
+            for lo in range(start, stop, chunk_samples):
+                yield record[lo : min(stop, lo + chunk_samples)].copy()
+            return
+        hop = plan.hop
+        first_block, last_block = start // hop, (stop - 1) // hop
+        position = first_block * hop  # absolute index of the next block's first sample
+        buffer = np.empty((min(chunk_samples, stop - start), 1))
+        filled, chunk_start = 0, start
+        for block in self._iter_blocks(first_block, last_block):
+            lo = max(start - position, 0)
+            hi = min(stop - position, hop)
+            while lo < hi:
+                take = min(hi - lo, buffer.shape[0] - filled)
+                buffer[filled : filled + take, 0] = block[lo : lo + take]
+                filled += take
+                lo += take
+                if filled == buffer.shape[0]:
+                    self._finish(buffer, chunk_start)
+                    yield buffer
+                    chunk_start += filled
+                    filled = 0
+                    buffer = np.empty((min(chunk_samples, stop - chunk_start), 1)) if chunk_start < stop else buffer
+            position += hop
+
+    def _check_range(self, start, stop) -> tuple[int, int]:
+        total = self.plan.total_samples
+        start = int(start)
+        stop = total if stop is None else int(stop)
+        if not 0 <= start < stop <= total:
+            raise InputError(f"sample range [{start}, {stop}) must lie inside [0, {total})", "range")
+        return start, stop
+
+    def iter_chunks(self, chunk_samples: int = 65536, start: int = 0, stop: int | None = None) -> Iterator[np.ndarray]:
+        """Samples ``[start, stop)`` in consecutive chunks of ``chunk_samples`` (the last may be shorter).
+
+        Yields arrays of shape (m, q): one column per quantity (acceleration
+        in g, velocity in m/s, displacement in m).  The values do not depend on
+        ``chunk_samples`` or ``start``.
+        """
+        chunk = int(chunk_samples)
+        if chunk < 1:
+            raise InputError(f"chunk size {chunk_samples!r} must be >= 1 sample", "chunk_samples")
+        start, stop = self._check_range(start, stop)
+        return self._iter_columns(chunk, start, stop)
+
+    def samples(self, start: int = 0, stop: int | None = None) -> np.ndarray:
+        """Samples ``[start, stop)`` as one array of shape (m, q)."""
+        start, stop = self._check_range(start, stop)
+        if self.plan.mode == "periodic":
+            return self._periodic_record()[start:stop].copy()
+        return next(self._iter_columns(stop - start, start, stop))
+
+    def take_record(self) -> np.ndarray:
+        """The whole record, shape (n, q); a periodic record is handed over without a copy and forgotten."""
+        if self.plan.mode == "periodic":
+            record = self._periodic_record()
+            self._record = None
+            return record
+        return self.samples()
+
+    def peak_abs(self, chunk_samples: int = 1 << 18) -> float:
+        """Largest |acceleration| in the record (g): a full pass in overlap-add mode."""
+        if self.plan.mode == "periodic":
+            return float(np.max(np.abs(self._periodic_record()[:, 0])))
+        return max(float(np.max(np.abs(chunk[:, 0]))) for chunk in self.iter_chunks(chunk_samples))
+
+
+# ----------------------------------------------------------------- library
+def _synthesizer(profile, duration_s, rate_hz, seed, options) -> tuple[Synthesizer, bool]:
+    names, single = parse_quantities(options.pop("quantities"))
+    ramp = options.pop("ramp_s")
+    if ramp is not None:
+        options.setdefault("ramp_in_s", ramp)
+        options.setdefault("ramp_out_s", ramp)
+    plan = plan_synthesis(profile, duration_s, rate_hz, quantities=names, **options)
+    return Synthesizer(plan, seed), single
+
+
+def generate_samples(
+    profile: AsdProfile,
+    duration_s: float,
+    rate_hz: float,
+    *,
+    seed,
+    amplitude: str = "fixed",
+    resolution_hz: float | None = None,
+    loop: bool = False,
+    ramp_s: float | None = None,
+    quantities="acceleration",
+    memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES,
+) -> np.ndarray:
+    """A Gaussian time history whose spectrum is the profile's.
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        Target ASD in g^2/Hz.
+    duration_s : float
+        Duration in s (rounded to whole samples).
+    rate_hz : float
+        Sample rate in Hz (> 2 x the top frequency).
+    seed : int, numpy.random.SeedSequence or numpy.random.Generator
+        Same seed and options: identical samples.
+    amplitude : {"fixed", "rayleigh"}
+        ``fixed`` (default): random phases, amplitudes fixed by the target
+        (each frame's periodogram is the target).  ``rayleigh``: a true
+        Gaussian realisation.
+    resolution_hz : float, optional
+        Line spacing for overlap-add frames (default from the profile).
+    loop : bool
+        One periodic record that repeats seamlessly.
+    ramp_s : float, optional
+        Raised-cosine fade-in and fade-out, s each.
+    quantities : str or sequence of str
+        ``"acceleration"`` (default) gives shape (n,) in g; a sequence such as
+        ``("acceleration", "velocity", "displacement")`` gives shape (n, q)
+        with columns in g, m/s and m, integrated in the frequency domain.
+    memory_budget_bytes : int
+        Working memory for one periodic record; beyond it, overlap-add.
+
+    Returns
+    -------
+    numpy.ndarray
+        Samples, shape (n,) or (n, q), float64.
+
+    References
+    ----------
+    Shinozuka & Jan (1972); Allen (1977); see :mod:`synth.synthesis`.
+    """
+    synthesizer, single = _synthesizer(
+        profile,
+        duration_s,
+        rate_hz,
+        seed,
+        dict(amplitude=amplitude, resolution_hz=resolution_hz, loop=loop, ramp_s=ramp_s,
+             quantities=quantities, memory_budget_bytes=memory_budget_bytes),
+    )
+    samples = synthesizer.take_record()
+    return samples[:, 0] if single else samples
+
+
+def iter_chunks(
+    profile: AsdProfile,
+    duration_s: float,
+    rate_hz: float,
+    *,
+    seed,
+    chunk_samples: int = 65536,
+    amplitude: str = "fixed",
+    resolution_hz: float | None = None,
+    loop: bool = False,
+    ramp_s: float | None = None,
+    quantities="acceleration",
+    memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES,
+) -> Iterator[np.ndarray]:
+    """The samples of :func:`generate_samples` as consecutive chunks, in constant memory.
+
+    Parameters
+    ----------
+    profile, duration_s, rate_hz, seed, amplitude, resolution_hz, loop, ramp_s, quantities, memory_budget_bytes
+        As for :func:`generate_samples`.
+    chunk_samples : int
+        Samples per chunk (the last may be shorter).  The samples do not
+        depend on it.
+
+    Yields
+    ------
+    numpy.ndarray
+        Shape (m,) or (m, q), float64, as :func:`generate_samples`.
+
+    References
+    ----------
+    Allen (1977), overlap-add synthesis; see :mod:`synth.synthesis`.
+    """
+    synthesizer, single = _synthesizer(
+        profile,
+        duration_s,
+        rate_hz,
+        seed,
+        dict(amplitude=amplitude, resolution_hz=resolution_hz, loop=loop, ramp_s=ramp_s,
+             quantities=quantities, memory_budget_bytes=memory_budget_bytes),
+    )
+    for chunk in synthesizer.iter_chunks(chunk_samples):
+        yield chunk[:, 0] if single else chunk
+
+
+def rig_limit_check(profile: AsdProfile, stroke_limit_mm: float | None = None, velocity_limit_m_s: float | None = None) -> None:
+    """Refuse a profile whose 3-sigma displacement or velocity exceeds a rig's limits.
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        Target ASD in g^2/Hz.
+    stroke_limit_mm : float, optional
+        Shaker stroke, peak-to-peak, in mm; compared with 6 x displacement RMS.
+    velocity_limit_m_s : float, optional
+        Shaker velocity limit (peak) in m/s; compared with 3 x velocity RMS.
+
+    Raises
+    ------
+    InputError
+        Naming the need, the limit and by how much it is exceeded.
+
+    References
+    ----------
+    Velocity and displacement ASD ``S_a g0^2/(2 pi f)^2`` and
+    ``S_a g0^2/(2 pi f)^4`` (Bendat & Piersol 2010); the 3-sigma margin is
+    common practice (no source).
+    """
+    if stroke_limit_mm is not None:
+        limit = _positive(stroke_limit_mm, "stroke limit", "mm")
+        need = profile.displacement_peak_to_peak_3sigma_m * 1e3
+        if need > limit:
+            raise InputError(
+                f"the profile needs {need:.3g} mm peak-to-peak displacement (3 sigma), "
+                f"{need - limit:.3g} mm ({100 * (need / limit - 1):.0f}%) beyond the {limit:g} mm stroke limit; "
+                "refusing to write the drive",
+                "--stroke-limit",
+            )
+    if velocity_limit_m_s is not None:
+        limit = _positive(velocity_limit_m_s, "velocity limit", "m/s")
+        need = 3.0 * profile.velocity_rms_m_s
+        if need > limit:
+            raise InputError(
+                f"the profile needs {need:.3g} m/s peak velocity (3 sigma), "
+                f"{need - limit:.3g} m/s ({100 * (need / limit - 1):.0f}%) beyond the {limit:g} m/s velocity limit; "
+                "refusing to write the drive",
+                "--velocity-limit",
+            )
+
+
+__all__ = [
+    "AMPLITUDE_MODES",
+    "DEFAULT_MEMORY_BUDGET_BYTES",
+    "MODES",
+    "QUANTITY_UNITS",
+    "SynthesisPlan",
+    "Synthesizer",
+    "choose_frame_length",
+    "generate_samples",
+    "iter_chunks",
+    "line_amplitudes",
+    "parse_quantities",
+    "periodic_memory_bytes",
+    "plan_synthesis",
+    "profile_resolution_hz",
+    "raised_cosine_ramp",
+    "rig_limit_check",
+    "root_seed_sequence",
+    "seed_entropy",
+    "sine_window",
+    "synthesize_frame",
+]
