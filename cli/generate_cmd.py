@@ -7,15 +7,9 @@ import signal
 import sys
 
 import click
-import numpy as np
-import scipy
 
 from cli.common import DRIVE_CAUTION, is_interactive_stderr, load_profile, warn
-from synth import __version__
-from synth import drivefile, synthesis
-
-#: Samples per chunk handed to the writer.
-CHUNK_SAMPLES = 1 << 16
+from synth import drive_job, drivefile, synthesis
 
 #: Records longer than this many samples show a progress bar (on a terminal).
 PROGRESS_MIN_SAMPLES = 1 << 21
@@ -130,128 +124,61 @@ def generate(profile, output, duration, rate, seed, amplitude, resolution, loop,
     limits, following your lab's procedures, local codes and licensed practice.
     """
     target = load_profile(profile, grms, level_db)
-    file_format = drivefile.drive_format(output)
-    subtype = drivefile.check_subtype(file_format, subtype)
-    names = _parse_quantities(quantities)
-    if len(names) > 1 and file_format not in ("csv", "npy"):
-        raise click.UsageError(f"--quantities {quantities} needs a .csv or .npy file; .{file_format} holds acceleration only")
-    if full_scale_g is not None and file_format not in ("wav", "flac"):
-        raise click.UsageError(f"--full-scale applies to .wav/.flac; .{file_format} holds values in g")
-    synthesis.rig_limit_check(target, stroke_limit, velocity_limit)
-    plan = synthesis.plan_synthesis(
-        target,
-        duration,
-        rate,
+    request = drive_job.DriveRequest(
+        output=output,
+        duration_s=duration,
+        rate_hz=rate,
+        seed=seed,
         amplitude=amplitude,
         resolution_hz=resolution,
         loop=loop,
-        ramp_in_s=ramp_s,
-        ramp_out_s=ramp_s,
-        quantities=names,
-        memory_budget_bytes=int(memory_budget_mb * 2**20),
+        quantities=_parse_quantities(quantities),
+        subtype=subtype,
+        full_scale_g=full_scale_g,
+        ramp_s=ramp_s,
+        stroke_limit_mm=stroke_limit,
+        velocity_limit_m_s=velocity_limit,
+        memory_budget_mb=memory_budget_mb,
+        profile_source=str(profile),
+        scaling={"grms": grms, "level_db": level_db},
     )
-    drivefile.check_drive_request(output, rate_hz=plan.rate_hz, samples=plan.total_samples,
-                                  quantities=plan.quantities, subtype=subtype)
-    for message in plan.warnings:
+    prepared = drive_job.prepare_drive(target, request)
+    for message in prepared.warnings:
         warn(message)
-    if seed is None:
-        seed = int(np.random.SeedSequence().entropy % 2**53)  # exact in any JSON reader
-    synthesizer = synthesis.Synthesizer(plan, seed)
-
-    sidecar = {
-        "seed": seed,
-        "mode": plan.mode,
-        "frame_length": plan.frame_length,
-        "resolution_hz": plan.resolution_hz,
-        "amplitude": plan.amplitude,
-        "loop": bool(loop),
-        "ramp_in_s": plan.ramp_in_samples / plan.rate_hz,
-        "ramp_out_s": plan.ramp_out_samples / plan.rate_hz,
-        "grms_target": target.grms,
-        "grms_lines": plan.line_variance ** 0.5,
-        "seed_derivation": "numpy SeedSequence(seed) children: overlap-add frame j uses spawn_key (0, j), "
-                           "a periodic record spawn_key (1,); PCG64; one standard normal pair per line",
-        "options": {
-            "duration_s": duration,
-            "rate_hz": rate,
-            "seed": seed,
-            "amplitude": amplitude,
-            "resolution_hz": resolution,
-            "loop": bool(loop),
-            "quantities": list(names),
-            "subtype": subtype,
-            "full_scale_g": full_scale_g,
-            "ramp_s": ramp_s,
-            "grms": grms,
-            "level_db": level_db,
-            "memory_budget_mb": memory_budget_mb,
-        },
-        "profile": {
-            "name": target.name,
-            "description": target.description,
-            "source": str(profile),
-            "breakpoints": [
-                {"frequency": float(f), "asd": float(s)} for f, s in zip(target.frequencies_hz, target.asd_g2_per_hz)
-            ],
-            "grms": target.grms,
-            "velocity_rms_m_s": target.velocity_rms_m_s,
-            "displacement_rms_m": target.displacement_rms_m,
-            "displacement_peak_to_peak_3sigma_m": target.displacement_peak_to_peak_3sigma_m,
-        },
-        "warnings": list(plan.warnings),
-        "tool": {"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__},
-    }
-
-    needs_peak = file_format in ("wav", "flac") and full_scale_g is None
-    passes = 2 if needs_peak and plan.mode == "overlap-add" else 1
-    show = is_interactive_stderr() and not quiet and plan.total_samples >= PROGRESS_MIN_SAMPLES
-    with _terminate_as_interrupt(), _Progress(show, passes * plan.total_samples) as progress:
-        scale = 1.0
-        if file_format in ("wav", "flac"):
-            if full_scale_g is not None:
-                scale = float(full_scale_g)
-                sidecar["full_scale"] = "given"
-            else:
-                if plan.mode == "periodic":
-                    peak = synthesizer.peak_abs()
-                else:
-                    peak = 0.0
-                    for chunk in synthesizer.iter_chunks(CHUNK_SAMPLES):
-                        peak = max(peak, float(np.max(np.abs(chunk[:, 0]))))
-                        progress(len(chunk))
-                scale = drivefile.full_scale_from_peak(peak)
-                sidecar["full_scale"] = "peak"
-                sidecar["headroom"] = drivefile.DEFAULT_HEADROOM
-        written = drivefile.write_drive(
-            output,
-            synthesizer.iter_chunks(CHUNK_SAMPLES),
-            rate_hz=plan.rate_hz,
-            samples=plan.total_samples,
-            quantities=plan.quantities,
-            subtype=subtype,
-            scale=scale,
-            sidecar=sidecar,
-            progress=progress,
-        )
-
+    written = write_with_progress(prepared, quiet)
     if not quiet:
-        side = drivefile.sidecar_path(output)
-        scale_text = f", full scale {written['scale']:.6g} g" if file_format in ("wav", "flac") else ""
-        lines = [
-            f"wrote {output} (sidecar {side.name})",
-            f"  samples     {plan.total_samples} at {plan.rate_hz:g} Hz ({plan.duration_s:g} s), "
-            f"{file_format} {subtype}{scale_text}",
-            f"  target      {target.grms:.4g} g RMS ({target.name}, {target.frequency_min_hz:g}-{target.frequency_max_hz:g} Hz); "
-            f"record peak {written['peak_g']:.4g} g",
-            f"  stroke      {target.displacement_peak_to_peak_3sigma_m * 1e3:.4g} mm peak-to-peak (3 sigma); "
-            f"velocity {target.velocity_rms_m_s:.4g} m/s RMS ({3 * target.velocity_rms_m_s:.4g} m/s at 3 sigma)",
-            f"  generation  {plan.mode}, {'record' if plan.mode == 'periodic' else 'frames'} of {plan.frame_length} "
-            f"samples ({plan.resolution_hz:.4g} Hz lines), {plan.amplitude} amplitudes, seed {seed}"
-            + (", loops seamlessly" if loop else "")
-            + (f", ramps {ramp_s:g} s" if plan.ramp_in_samples else ""),
-        ]
-        click.echo("\n".join(lines))
+        click.echo(format_written(prepared, written))
     click.echo(DRIVE_CAUTION, err=True)
+
+
+def write_with_progress(prepared, quiet: bool) -> dict:
+    """Write a prepared drive, with a progress bar on a terminal and clean removal on SIGTERM."""
+    total = prepared.plan.total_samples
+    show = is_interactive_stderr() and not quiet and total >= PROGRESS_MIN_SAMPLES
+    with _terminate_as_interrupt(), _Progress(show, prepared.passes * total) as progress:
+        return drive_job.write_prepared_drive(prepared, progress)
+
+
+def format_written(prepared, written: dict) -> str:
+    """What was written, the figures a rig operator checks, and how the record was made."""
+    plan, target, request = prepared.plan, prepared.profile, prepared.request
+    side = drivefile.sidecar_path(request.output)
+    file_format = prepared.file_format
+    scale_text = f", full scale {written['scale']:.6g} g" if file_format in ("wav", "flac") else ""
+    lines = [
+        f"wrote {request.output} (sidecar {side.name})",
+        f"  samples     {plan.total_samples} at {plan.rate_hz:g} Hz ({plan.duration_s:g} s), "
+        f"{file_format} {prepared.subtype}{scale_text}",
+        f"  target      {target.grms:.4g} g RMS ({target.name}, {target.frequency_min_hz:g}-{target.frequency_max_hz:g} Hz); "
+        f"record peak {written['peak_g']:.4g} g",
+        f"  stroke      {target.displacement_peak_to_peak_3sigma_m * 1e3:.4g} mm peak-to-peak (3 sigma); "
+        f"velocity {target.velocity_rms_m_s:.4g} m/s RMS ({3 * target.velocity_rms_m_s:.4g} m/s at 3 sigma)",
+        f"  generation  {plan.mode}, {'record' if plan.mode == 'periodic' else 'frames'} of {plan.frame_length} "
+        f"samples ({plan.resolution_hz:.4g} Hz lines), {plan.amplitude} amplitudes, seed {prepared.sidecar['seed']}"
+        + (", loops seamlessly" if request.loop else "")
+        + (f", ramps {request.ramp_s:g} s" if plan.ramp_in_samples else ""),
+    ]
+    return "\n".join(lines)
 
 
 __all__ = ["generate"]
