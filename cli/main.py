@@ -43,7 +43,8 @@ def _register() -> None:
     cli.add_command(info_cmd.presets)
     for module_name, names in (
         ("cli.generate_cmd", ("generate",)),
-        ("cli.verify_cmd", ("verify", "run")),
+        ("cli.verify_cmd", ("verify",)),
+        ("cli.run_cmd", ("run",)),
         ("cli.peaks_cmd", ("peaks",)),
     ):
         try:

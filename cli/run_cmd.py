@@ -1,0 +1,158 @@
+"""`vibsynth run`: the whole job in one command (generate, verify, report) into one folder."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import click
+
+from cli.common import DRIVE_CAUTION, load_profile, warn
+from cli.generate_cmd import format_written, write_with_progress
+from cli.verify_cmd import (
+    _clean,
+    _dof_option,
+    _grms_tolerance_option,
+    _min_fraction_option,
+    _resolution_option,
+    _tolerance_option,
+    criteria_for,
+    format_verification,
+    run_verification,
+    write_json_atomic,
+)
+from synth import drive_job
+
+#: The preset used when no profile is named.
+DEFAULT_PRESET = "parcel-conveyor"
+
+#: Sample rates offered by default: the smallest one at least 2.56 x the top frequency is used.
+COMMON_RATES_HZ = (1024, 2048, 4096, 5120, 8192, 10240, 12800, 16384, 20480, 25600, 32768, 51200, 65536, 102400)
+
+#: Default record length (s): long enough for 120 dof at a fine resolution on the presets.
+DEFAULT_DURATION_S = 120.0
+
+
+def default_rate_hz(top_frequency_hz: float) -> float:
+    """The smallest common rate at least 2.56 x the top frequency (anti-alias margin; common practice, no source)."""
+    for rate in COMMON_RATES_HZ:
+        if rate >= 2.56 * top_frequency_hz:
+            return float(rate)
+    return float(2 ** int(2.56 * top_frequency_hz).bit_length())
+
+
+def _folder_name(profile_name: str) -> str:
+    safe = re.sub(r"[^A-Za-z0-9._-]+", "-", profile_name).strip("-") or "profile"
+    return f"vibsynth-run-{safe}"
+
+
+@click.command()
+@click.argument("profile", required=False)
+@click.option("-o", "--out", "out_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
+              help="Output folder (created if needed). Default: ./vibsynth-run-NAME.")
+@click.option("--duration", type=click.FloatRange(min=0, min_open=True), default=DEFAULT_DURATION_S,
+              show_default=True, metavar="S", help="Drive duration in seconds.")
+@click.option("--rate", type=click.FloatRange(min=0, min_open=True), default=None, metavar="HZ",
+              help="Sample rate in Hz. Default: the smallest common rate at least 2.56 x the top frequency.")
+@click.option("--format", "file_format", type=click.Choice(["flac", "wav", "csv", "npy"]), default="flac",
+              show_default=True, help="Drive file format.")
+@click.option("--seed", type=click.IntRange(min=0), default=None, metavar="N",
+              help="Seed (default: a fresh one, recorded in the sidecar).")
+@click.option("--amplitude", type=click.Choice(["fixed", "rayleigh"]), default="fixed", show_default=True,
+              help="Line amplitudes (see `vibsynth generate --help`).")
+@click.option("--ramp", "ramp_s", type=click.FloatRange(min=0), default=0.0, metavar="S",
+              help="Raised-cosine fade-in and fade-out, s each.")
+@click.option("--stroke-limit", type=click.FloatRange(min=0, min_open=True), default=None, metavar="MM",
+              help="Refuse if the profile's 3-sigma peak-to-peak displacement exceeds MM.")
+@click.option("--velocity-limit", type=click.FloatRange(min=0, min_open=True), default=None, metavar="M_S",
+              help="Refuse if the profile's 3-sigma velocity exceeds M_S m/s.")
+@click.option("--grms", type=click.FloatRange(min=0, min_open=True), default=None, metavar="G",
+              help="Rescale the profile to this g RMS first.")
+@click.option("--level-db", type=float, default=None, metavar="DB", help="Shift the profile by DB decibels first.")
+@_tolerance_option
+@_grms_tolerance_option
+@_min_fraction_option
+@_resolution_option
+@_dof_option
+def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms,
+        level_db, tolerance, grms_tolerance, min_fraction, resolution, dof):
+    """The main job: generate a drive for PROFILE, verify it, write everything into one folder.
+
+    PROFILE defaults to the bundled preset `parcel-conveyor` (invented demo
+    data). Writes drive.FORMAT and its sidecar, the target profile
+    (profile.toml), report.json (generation and verification), the figures
+    (asd.png, amplitude.png, excerpt.png, rms.png) and report.pdf. Exit 0 when
+    the drive passes verification, 1 when it does not, 2 for bad input.
+
+    A drive file is open-loop: play it only through a closed-loop controller
+    with alarm and abort limits, within the shaker's stroke, velocity and force
+    limits, following your lab's procedures, local codes and licensed practice.
+    """
+    from synth.drivefile import open_drive
+    from synth.figures import write_report_figures
+    from synth.profile_io import write_profile
+
+    spec = profile or DEFAULT_PRESET
+    target = load_profile(spec, grms, level_db)
+    rate_hz = rate if rate is not None else default_rate_hz(target.frequency_max_hz)
+    folder = Path(out_dir) if out_dir else Path(_folder_name(target.name))
+    if folder.exists() and not folder.is_dir():
+        raise click.UsageError(f"{folder} exists and is not a folder; give another --out")
+    drive_path = folder / f"drive.{file_format}"
+    request = drive_job.DriveRequest(
+        output=str(drive_path),
+        duration_s=duration,
+        rate_hz=rate_hz,
+        seed=seed,
+        amplitude=amplitude,
+        ramp_s=ramp_s,
+        stroke_limit_mm=stroke_limit,
+        velocity_limit_m_s=velocity_limit,
+        profile_source=spec,
+        scaling={"grms": grms, "level_db": level_db},
+    )
+    # Check the verification options before any work is done.
+    from cli.verify_cmd import parse_tolerance
+
+    parse_tolerance(tolerance)
+    folder_created = not folder.exists()
+    folder.mkdir(parents=True, exist_ok=True)
+    try:
+        prepared = drive_job.prepare_drive(target, request)
+    except Exception:
+        if folder_created and not any(folder.iterdir()):
+            folder.rmdir()
+        raise
+    for message in prepared.warnings:
+        warn(message)
+    written = write_with_progress(prepared, quiet=False)
+    click.echo(format_written(prepared, written))
+
+    drive = open_drive(drive_path)
+    criteria = criteria_for(drive, tolerance, grms_tolerance, min_fraction)
+    result = run_verification(drive, target, criteria, resolution, dof)
+    if result.segment_message:
+        warn(result.segment_message)
+    write_profile(target, folder / "profile.toml")
+    figures = write_report_figures(result, folder, title=f"{drive_path.name} ({target.name})")
+    report = {
+        "drive": str(drive_path),
+        "sidecar": str(drive_path) + ".json",
+        "profile": target.summary(),
+        "generation": {key: written.get(key) for key in ("seed", "mode", "frame_length", "resolution_hz", "amplitude",
+                                                           "rate", "samples", "duration_s", "scale", "peak_g")},
+        "verification": _clean(result.to_dict()),
+        "figures": figures,
+    }
+    write_json_atomic(folder / "report.json", report)
+    click.echo("")
+    click.echo(format_verification(result, drive_path.name))
+    click.echo("")
+    click.echo(f"files in {folder}/:")
+    for name in (drive_path.name, drive_path.name + ".json", "profile.toml", "report.json", "report.pdf",
+                 "asd.png", "amplitude.png", "excerpt.png", "rms.png"):
+        click.echo(f"  {name}")
+    if not result.passed:
+        warn("the drive did NOT pass verification; see report.pdf before using it")
+    click.echo(DRIVE_CAUTION, err=True)
+    click.get_current_context().exit(0 if result.passed else 1)
