@@ -1,0 +1,212 @@
+"""vibsynth benchmark: ratios against reference methods, measured in one run on one machine.
+
+Run from the repository root (not part of the test suite):
+
+    python tests/bench/run.py            # full run, a few minutes
+    python tests/bench/run.py --quick    # smaller sizes, shorter streams
+
+Prints a table and a JSON document. Every figure is a ratio of two timings (or
+a memory peak) measured in this run on the same data, so the numbers are
+comparable across machines; absolute seconds are shown for context only.
+
+Measures
+--------
+1. generate in memory, 2^24 samples, against the method's floor: one
+   complex-to-real inverse FFT of that length plus the same number of normal
+   draws (goal <= 1.5x);
+2. generate streamed to .flac and .wav, one hour at 51.2 kHz: throughput
+   against the floor's rate (goal >= 0.5x) and peak RSS of the process
+   (goal < 256 MB, and flat when the duration doubles: half an hour vs one hour);
+3. verify against scipy.signal.welch on the same in-memory array
+   (goal <= 1.0x), and verify from a file in constant memory (peak RSS);
+4. non-Gaussian (kurtosis 6, compensated) against Gaussian generation (goal <= 1.3x);
+5. a naive sum-of-sines synthesis of the same spectrum against ours, at
+   growing sizes (shows the O(N^2) against O(N log N) scaling).
+
+The profile is invented demo data (20-2000 Hz).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+from pathlib import Path
+
+import numpy as np
+import scipy.fft
+from scipy import signal
+
+REPO = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(REPO))
+
+from synth.profile import AsdProfile  # noqa: E402
+from synth.synthesis import generate_samples  # noqa: E402
+from synth.verify import verify_record  # noqa: E402
+from synth.welch import welch_asd  # noqa: E402
+
+RATE_HZ = 51200.0
+PROFILE = AsdProfile([20, 80, 350, 2000], [0.01, 0.04, 0.04, 0.005], name="invented-bench")
+PROFILE_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n80,0.04\n350,0.04\n2000,0.005\n"
+
+_CHILD = textwrap.dedent(
+    """
+    import resource, sys
+    from cli.main import main
+    status = main(sys.argv[1:])
+    print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
+    sys.exit(status)
+    """
+)
+# A small launcher in between: Linux keeps the parent's peak RSS in a child's ru_maxrss after fork.
+_LAUNCHER = "import subprocess, sys; sys.exit(subprocess.call(sys.argv[1:]))"
+
+
+def best_of(job, rounds: int) -> float:
+    """Smallest wall time of ``rounds`` runs (the least disturbed run on a shared machine), s."""
+    best = float("inf")
+    for _ in range(rounds):
+        start = time.perf_counter()
+        job()
+        best = min(best, time.perf_counter() - start)
+    return best
+
+
+def cli_child(argv: list[str]) -> tuple[float, float]:
+    """Run ``vibsynth ARGV`` in a fresh process; return (peak RSS in MB, wall time in s)."""
+    env = dict(os.environ, PYTHONPATH=str(REPO) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    start = time.perf_counter()
+    done = subprocess.run(
+        [sys.executable, "-c", _LAUNCHER, sys.executable, "-c", _CHILD, *argv],
+        env=env, capture_output=True, text=True,
+    )
+    wall = time.perf_counter() - start
+    if done.returncode not in (0, 1):
+        raise RuntimeError(f"vibsynth {' '.join(argv)} failed: {done.stderr.strip()}")
+    return int(done.stdout.split()[-1]) * 1024 / 2**20, wall
+
+
+def sum_of_sines(profile: AsdProfile, samples: int, rate_hz: float, rng: np.random.Generator) -> np.ndarray:
+    """Naive reference: one cosine per line, summed sample by sample in blocks (O(N^2))."""
+    df = rate_hz / samples
+    f = np.arange(1, samples // 2) * df
+    amplitude = np.sqrt(2 * profile.evaluate(f) * df)
+    keep = amplitude > 0
+    f, amplitude = f[keep], amplitude[keep]
+    phase = rng.uniform(0, 2 * np.pi, f.size)
+    t = np.arange(samples) / rate_hz
+    out = np.empty(samples)
+    block = 4096
+    for start in range(0, samples, block):
+        tt = t[start:start + block, None]
+        out[start:start + block] = np.cos(2 * np.pi * f[None, :] * tt + phase[None, :]) @ amplitude
+    return out
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description="vibsynth benchmark: ratios measured in one run")
+    parser.add_argument("--quick", action="store_true", help="smaller sizes and shorter streams")
+    parser.add_argument("--rounds", type=int, default=3)
+    options = parser.parse_args()
+    samples = 1 << (20 if options.quick else 24)
+    stream_s = 300.0 if options.quick else 3600.0
+    duration = samples / RATE_HZ
+    rounds = options.rounds
+    rows, results = [], {}
+
+    rng = np.random.default_rng(0)
+    lines = rng.standard_normal(samples // 2 + 1) + 1j * rng.standard_normal(samples // 2 + 1)
+    t_fft = best_of(lambda: scipy.fft.irfft(lines, n=samples), rounds)
+    t_draw = best_of(lambda: rng.standard_normal(samples), rounds)
+    floor = t_fft + t_draw
+    results["floor_s"] = floor
+    rows.append(("floor: irfft + normal draws", f"{samples} samples", f"{floor:.3f} s", "", "reference"))
+
+    # 1. in memory
+    for amplitude in ("fixed", "rayleigh"):
+        seconds = best_of(lambda: generate_samples(PROFILE, duration, RATE_HZ, seed=1, amplitude=amplitude,
+                                                   memory_budget_bytes=1 << 40), rounds)
+        ratio = seconds / floor
+        results[f"generate_in_memory_{amplitude}_x_floor"] = ratio
+        rows.append((f"generate in memory ({amplitude})", f"{samples} samples", f"{seconds:.3f} s",
+                     f"{ratio:.2f} x floor", "<= 1.5"))
+
+    # 4. non-Gaussian against Gaussian (same size, in memory)
+    try:
+        gaussian = best_of(lambda: generate_samples(PROFILE, duration, RATE_HZ, seed=1,
+                                                    memory_budget_bytes=1 << 40), rounds)
+        kurtic = best_of(lambda: generate_samples(PROFILE, duration, RATE_HZ, seed=1, kurtosis=6.0,
+                                                  memory_budget_bytes=1 << 40), rounds)
+        ratio = kurtic / gaussian
+        results["nongaussian_over_gaussian"] = ratio
+        rows.append(("kurtosis 6 vs Gaussian", f"{samples} samples", f"{kurtic:.3f} s", f"{ratio:.2f} x", "<= 1.3"))
+    except TypeError:
+        rows.append(("kurtosis 6 vs Gaussian", "-", "-", "not available", "<= 1.3"))
+
+    # 3. verify against scipy.signal.welch on the same array
+    x = generate_samples(PROFILE, duration, RATE_HZ, seed=2, memory_budget_bytes=1 << 40)
+    nperseg = 8192
+    t_scipy = best_of(lambda: signal.welch(x, fs=RATE_HZ, window="hann", nperseg=nperseg,
+                                           noverlap=nperseg // 2, detrend="constant", scaling="density"), rounds)
+    t_ours = best_of(lambda: welch_asd(x, RATE_HZ, nperseg), rounds)
+    results["welch_over_scipy"] = t_ours / t_scipy
+    rows.append(("Welch estimate vs scipy.signal.welch", f"{samples} samples", f"{t_ours:.3f} s",
+                 f"{t_ours / t_scipy:.2f} x", "<= 1.0"))
+    t_verify = best_of(lambda: verify_record(x, RATE_HZ, PROFILE, resolution_hz=RATE_HZ / nperseg), rounds)
+    results["verify_over_scipy_welch"] = t_verify / t_scipy
+    rows.append(("full verify (2 passes, stats) vs scipy welch", f"{samples} samples", f"{t_verify:.3f} s",
+                 f"{t_verify / t_scipy:.2f} x", "(context)"))
+
+    # 5. naive sum of sines
+    for log2 in (10, 12, 14):
+        n = 1 << log2
+        t_naive = best_of(lambda: sum_of_sines(PROFILE, n, 8192.0, np.random.default_rng(1)), 1)
+        t_fast = best_of(lambda: generate_samples(PROFILE, n / 8192.0, 8192.0, seed=1, resolution_hz=8192.0 / n,
+                                                  memory_budget_bytes=1 << 40), rounds)
+        results[f"sum_of_sines_over_ours_2^{log2}"] = t_naive / t_fast
+        rows.append((f"sum of sines vs ours", f"{n} samples", f"{t_naive:.3f} s", f"{t_naive / t_fast:.0f} x slower",
+                     "(scaling)"))
+
+    # 2. streamed to files, in a fresh process each
+    with tempfile.TemporaryDirectory() as folder:
+        folder = Path(folder)
+        profile_path = folder / "bench.csv"
+        profile_path.write_text(PROFILE_CSV)
+        for suffix in ("flac", "wav"):
+            peaks = []
+            for seconds in (stream_s / 2, stream_s):
+                out = folder / f"stream.{suffix}"
+                rss, wall = cli_child(["generate", str(profile_path), "-o", str(out), "--duration", str(seconds),
+                                       "--rate", str(int(RATE_HZ)), "--seed", "1", "--quiet"])
+                peaks.append(rss)
+                total = seconds * RATE_HZ
+                # end to end: process start, peak pass (full scale from the record's peak) and encoding
+                throughput = (total / wall) / (samples / floor)
+                if seconds == stream_s:
+                    results[f"stream_{suffix}_throughput_x_floor"] = throughput
+                    results[f"stream_{suffix}_peak_rss_mb"] = rss
+                    rows.append((f"generate streamed to .{suffix}", f"{seconds:g} s at 51.2 kHz", f"{wall:.1f} s",
+                                 f"{throughput:.2f} x floor rate", ">= 0.5"))
+            results[f"stream_{suffix}_rss_mb_half_then_full"] = peaks
+            rows.append((f"  peak RSS .{suffix} (half, full duration)", "", "", f"{peaks[0]:.0f} / {peaks[1]:.0f} MB",
+                         "< 256, flat"))
+        rss, wall = cli_child(["verify", str(folder / "stream.flac"), "--json"])
+        results["verify_file_peak_rss_mb"] = rss
+        rows.append(("verify from .flac file (streamed)", f"{stream_s:g} s at 51.2 kHz", f"{wall:.1f} s",
+                     f"{rss:.0f} MB peak RSS", "constant memory"))
+
+    width = [max(len(str(r[i])) for r in rows + [("measure", "size", "time", "ratio", "goal")]) for i in range(5)]
+    header = ("measure", "size", "time", "ratio", "goal")
+    print("  ".join(h.ljust(w) for h, w in zip(header, width)))
+    for row in rows:
+        print("  ".join(str(c).ljust(w) for c, w in zip(row, width)))
+    print(json.dumps(results, indent=2))
+
+
+if __name__ == "__main__":
+    main()
