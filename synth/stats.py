@@ -36,6 +36,7 @@ import numpy as np
 from scipy.special import erfc
 
 from synth.errors import InputError
+from synth.record_input import as_samples, check_rate_hz
 
 __all__ = [
     "MomentAccumulator",
@@ -48,33 +49,6 @@ __all__ = [
 
 #: Exceedance levels, in standard deviations, counted by default.
 DEFAULT_LEVELS_SIGMA = (1.0, 2.0, 3.0, 4.0)
-
-
-def _check_rate(rate_hz) -> float:
-    if isinstance(rate_hz, bool) or not isinstance(rate_hz, numbers.Real) or not math.isfinite(rate_hz) \
-            or rate_hz <= 0:
-        raise InputError(f"rate_hz must be a finite sample rate > 0 Hz, got {rate_hz!r}", location="rate_hz")
-    return float(rate_hz)
-
-
-def _as_samples(chunk, first_index: int) -> np.ndarray:
-    arr = np.asarray(chunk)
-    if arr.ndim != 1:
-        raise InputError(f"samples must be a 1-D array (one channel), got an array of shape {arr.shape}",
-                         location="chunk")
-    if np.iscomplexobj(arr):
-        raise InputError("samples must be real numbers, got complex values", location="chunk")
-    try:
-        arr = np.asarray(arr, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise InputError("samples must be real numbers", location="chunk") from None
-    if arr.size and not np.isfinite(np.add.reduce(arr)):
-        bad = np.flatnonzero(~np.isfinite(arr))
-        if bad.size:
-            i = first_index + int(bad[0])
-            raise InputError(f"sample {i} is {arr[bad[0]]!r}; every sample must be a finite number",
-                             location=f"sample {i}")
-    return arr
 
 
 @dataclass(frozen=True)
@@ -161,7 +135,7 @@ class MomentAccumulator:
     """
 
     def __init__(self, rate_hz: float, window_s: float | None = None):
-        self._rate_hz = _check_rate(rate_hz)
+        self._rate_hz = check_rate_hz(rate_hz)
         if window_s is None:
             self._window_samples = 0
             self._window_s = None
@@ -236,7 +210,7 @@ class MomentAccumulator:
         Chan, Golub & LeVeque (1979); Pebay (2008): pairwise merge of central
         moments.
         """
-        x = _as_samples(chunk, self._n)
+        x = as_samples(chunk, self._n)
         if x.size == 0:
             return
         n_b = x.size
@@ -361,7 +335,7 @@ class LevelCrossingAccumulator:
     """
 
     def __init__(self, rate_hz: float, mean: float, std: float, levels_sigma=DEFAULT_LEVELS_SIGMA):
-        self._rate_hz = _check_rate(rate_hz)
+        self._rate_hz = check_rate_hz(rate_hz)
         if isinstance(mean, bool) or not isinstance(mean, numbers.Real) or not math.isfinite(mean):
             raise InputError(f"mean must be a finite number, got {mean!r}", location="mean")
         if isinstance(std, bool) or not isinstance(std, numbers.Real) or not math.isfinite(std) or std <= 0:
@@ -392,7 +366,7 @@ class LevelCrossingAccumulator:
         ----------
         Rice (1944/45), level up-crossings.
         """
-        x = _as_samples(chunk, self._n)
+        x = as_samples(chunk, self._n)
         if x.size == 0:
             return
         self._n += x.size

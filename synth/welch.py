@@ -36,6 +36,7 @@ import scipy.stats
 from numpy.lib.stride_tricks import sliding_window_view
 
 from synth.errors import InputError
+from synth.record_input import as_samples, check_rate_hz
 
 __all__ = [
     "WelchAccumulator",
@@ -62,45 +63,12 @@ _BLOCK_SAMPLES = 1 << 19
 _FFT_WORKERS = 2
 
 
-def _check_rate(rate_hz: float, name: str = "rate_hz") -> float:
-    if isinstance(rate_hz, bool) or not isinstance(rate_hz, numbers.Real):
-        raise InputError(f"{name} must be a number of samples per second, got {rate_hz!r}", location=name)
-    rate = float(rate_hz)
-    if not math.isfinite(rate) or rate <= 0.0:
-        raise InputError(f"{name} must be a finite sample rate > 0 Hz, got {rate_hz!r}", location=name)
-    return rate
-
-
 def _check_count(value: int, name: str, minimum: int) -> int:
     if isinstance(value, bool) or not isinstance(value, numbers.Integral):
         raise InputError(f"{name} must be a whole number >= {minimum}, got {value!r}", location=name)
     if int(value) < minimum:
         raise InputError(f"{name} must be >= {minimum}, got {int(value)}", location=name)
     return int(value)
-
-
-def _as_samples(chunk, first_index: int) -> np.ndarray:
-    """A 1-D float64 view/copy of ``chunk``; refuses complex, N-D and non-finite data."""
-    arr = np.asarray(chunk)
-    if arr.ndim != 1:
-        raise InputError(
-            f"samples must be a 1-D array (one channel), got an array of shape {arr.shape}",
-            location="chunk",
-        )
-    if np.iscomplexobj(arr):
-        raise InputError("samples must be real numbers, got complex values", location="chunk")
-    try:
-        arr = np.asarray(arr, dtype=np.float64)
-    except (TypeError, ValueError):
-        raise InputError("samples must be real numbers", location="chunk") from None
-    if arr.size and not np.isfinite(np.add.reduce(arr)):
-        bad = np.flatnonzero(~np.isfinite(arr))
-        if bad.size:  # (otherwise the sum overflowed on finite values; that is allowed)
-            raise InputError(
-                f"sample {first_index + int(bad[0])} is {arr[bad[0]]!r}; every sample must be a finite number",
-                location=f"sample {first_index + int(bad[0])}",
-            )
-    return arr
 
 
 def overlap_correlation(window, step_samples: int) -> np.ndarray:
@@ -326,7 +294,7 @@ class WelchAccumulator:
     """
 
     def __init__(self, rate_hz: float, nperseg: int):
-        self._rate_hz = _check_rate(rate_hz)
+        self._rate_hz = check_rate_hz(rate_hz)
         self._nperseg = _check_count(nperseg, "nperseg", 2)
         n = self._nperseg
         self._step = n - n // 2
@@ -395,7 +363,7 @@ class WelchAccumulator:
         ----------
         Welch (1967), segment averaging.
         """
-        x = _as_samples(chunk, self._samples)
+        x = as_samples(chunk, self._samples)
         if x.size == 0:
             return
         self._samples += x.size
@@ -608,7 +576,7 @@ def choose_nperseg(n_samples: int, rate_hz: float, resolution_hz: float | None =
     design choices of this project (common practice, no source).
     """
     n_rec = _check_count(n_samples, "n_samples", 0)
-    rate = _check_rate(rate_hz)
+    rate = check_rate_hz(rate_hz)
 
     def positive(value, name):
         if value is None:
