@@ -73,6 +73,30 @@ def criteria_for(drive, tolerance, grms_tolerance, min_fraction):
     )
 
 
+def sidecar_compensation(drive) -> dict | None:
+    """What the generator predicted for a non-Gaussian drive (the sidecar's ``compensation`` block), or None.
+
+    Copied as it is into the verify report under ``compensation``, so the
+    achievable residual the generator promised sits beside what the verifier
+    measured; the verifier itself never reads it.
+    """
+    block = drive.sidecar.get("compensation") if isinstance(drive.sidecar, dict) else None
+    if not isinstance(block, dict):
+        return None
+    keys = ("achievable", "worst_in_band_deviation_db", "worst_in_band_deviation_frequency_hz", "residual_relative",
+            "out_of_band_fraction", "iterations", "converged", "description")
+    return {key: block.get(key) for key in keys if key in block}
+
+
+def format_compensation(block: dict) -> str:
+    """One report line for the sidecar's compensation prediction."""
+    worst = block.get("worst_in_band_deviation_db")
+    text = "predicted worst in-band " + (f"{worst:+.2f} dB" if isinstance(worst, (int, float)) else "n/a")
+    if block.get("achievable") is False:
+        text += " (the generator reported the target as not fully reachable)"
+    return f"  compensation  {text} (from the sidecar, non-Gaussian drive)"
+
+
 def run_verification(drive, target, criteria, resolution=None, dof=None):
     """Verify an open drive file against a target (streamed, two passes)."""
     from synth.verify import verify_record
@@ -229,6 +253,9 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
         warn(result.segment_message)
     data = _clean(result.to_dict())
     data["file"] = str(file)
+    compensation = sidecar_compensation(drive)
+    if compensation is not None:
+        data["compensation"] = _clean(compensation)
     if report_dir:
         folder = Path(report_dir)
         folder.mkdir(parents=True, exist_ok=True)
@@ -242,6 +269,8 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
         click.echo(json.dumps(data, indent=2, allow_nan=False))
     else:
         click.echo(format_verification(result, Path(file).name))
+        if compensation is not None:
+            click.echo(format_compensation(compensation))
         if report_dir:
             click.echo(f"  report       {report_dir}/ (report.pdf, asd.png, amplitude.png, excerpt.png, rms.png, verify.json)")
     click.get_current_context().exit(0 if result.passed else 1)

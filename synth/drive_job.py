@@ -5,6 +5,12 @@ it checks the whole request before any sample is made, records every option
 that affects the samples in the sidecar (so the file is self-describing and
 can be remade from its seed), and writes atomically through
 :func:`synth.drivefile.write_drive`.
+
+A request for a kurtosis, skewness or clip level makes a non-Gaussian drive
+(:mod:`synth.nongaussian`): the Gaussian plan's spectrum is pre-compensated,
+the memoryless transform is applied to the Gaussian stream after overlap-add,
+the output is scaled to the target g RMS and only then ramped.  The sidecar
+then carries ``transform`` and ``compensation`` blocks.
 """
 
 from __future__ import annotations
@@ -14,7 +20,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy
 
-from synth import __version__, drivefile, synthesis
+from synth import __version__, drivefile, nongaussian, synthesis
 from synth.errors import InputError
 from synth.profile import AsdProfile
 
@@ -59,6 +65,13 @@ class DriveRequest:
         How the profile was named (file or preset), for the sidecar.
     scaling : dict
         The rescale options applied to the profile (for the sidecar).
+    kurtosis : float or None
+        Target Pearson kurtosis (3: Gaussian) by a cubic Hermite transform.
+    skewness : float or None
+        Target skewness by a cubic Hermite transform (alone: kurtosis 3).
+    clip : float or None
+        Crest factor limit: every sample within ``clip`` x the target g RMS
+        (cannot be combined with ``kurtosis``/``skewness``).
     """
 
     output: str
@@ -77,11 +90,18 @@ class DriveRequest:
     memory_budget_mb: float = 256.0
     profile_source: str = ""
     scaling: dict = field(default_factory=dict)
+    kurtosis: float | None = None
+    skewness: float | None = None
+    clip: float | None = None
 
 
 @dataclass(frozen=True)
 class PreparedDrive:
-    """A checked request with its plan, synthesizer and sidecar, ready to write."""
+    """A checked request with its plan, synthesizer and sidecar, ready to write.
+
+    ``design`` is the non-Gaussian design (transform and compensation) or None
+    for a Gaussian drive.
+    """
 
     request: DriveRequest
     profile: AsdProfile
@@ -91,6 +111,7 @@ class PreparedDrive:
     subtype: str
     sidecar: dict
     warnings: tuple
+    design: nongaussian.NonGaussianDesign | None = None
 
     @property
     def passes(self) -> int:
@@ -115,12 +136,18 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     Raises
     ------
     InputError
-        Any problem with the request (rate, duration, format, folder, limits).
+        Any problem with the request (rate, duration, format, folder, limits,
+        ``clip`` combined with ``kurtosis``/``skewness``, non-Gaussian options
+        with velocity/displacement columns).
+    OutOfRangeError
+        A kurtosis, skewness or clip level no transform reaches (the message
+        states the reachable range).
 
     References
     ----------
     Random-phase inverse-FFT synthesis (Shinozuka & Deodatis 1991, Appl. Mech.
-    Rev. 44(4)); see :mod:`synth.synthesis`.
+    Rev. 44(4)); see :mod:`synth.synthesis`.  Non-Gaussian drives: Winterstein
+    (1988), Yamazaki & Shinozuka (1988); see :mod:`synth.nongaussian`.
     """
     file_format = drivefile.drive_format(request.output)
     subtype = drivefile.check_subtype(file_format, request.subtype)
@@ -132,7 +159,18 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         )
     if request.full_scale_g is not None and file_format not in ("wav", "flac"):
         raise InputError(f"--full-scale applies to .wav/.flac; .{file_format} holds values in g", "--full-scale")
+    transform = nongaussian.plan_transform(request.kurtosis, request.skewness, request.clip)
+    if transform is not None and len(names) > 1:
+        raise InputError(
+            "velocity/displacement columns are integrated from Gaussian lines and cannot follow a non-Gaussian "
+            "(kurtosis, skewness or clip) acceleration; drop those columns or the non-Gaussian options",
+            "--quantities",
+        )
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
+    budget_bytes = int(request.memory_budget_mb * 2**20)
+    if transform is not None:
+        # a non-Gaussian periodic record also holds its spectrum for the high-pass
+        budget_bytes = budget_bytes * synthesis.PERIODIC_BYTES_PER_SAMPLE // nongaussian.PERIODIC_BYTES_PER_SAMPLE
     plan = synthesis.plan_synthesis(
         profile,
         request.duration_s,
@@ -143,15 +181,19 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         ramp_in_s=request.ramp_s,
         ramp_out_s=request.ramp_s,
         quantities=names,
-        memory_budget_bytes=int(request.memory_budget_mb * 2**20),
+        memory_budget_bytes=budget_bytes,
     )
     drivefile.check_drive_request(
         request.output, rate_hz=plan.rate_hz, samples=plan.total_samples, quantities=plan.quantities, subtype=subtype
     )
+    grms_lines = plan.line_variance**0.5
+    design = None
+    if transform is not None:
+        plan, design = nongaussian.nongaussian_plan(profile, plan, transform)
     seed = request.seed
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % 2**53)  # exact in any JSON reader
-    synthesizer = synthesis.Synthesizer(plan, seed)
+    synthesizer = synthesis.Synthesizer(plan, seed) if design is None else design.synthesizer(plan, seed)
     sidecar = {
         "seed": seed,
         "mode": plan.mode,
@@ -162,7 +204,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         "ramp_in_s": plan.ramp_in_samples / plan.rate_hz,
         "ramp_out_s": plan.ramp_out_samples / plan.rate_hz,
         "grms_target": profile.grms,
-        "grms_lines": plan.line_variance**0.5,
+        "grms_lines": grms_lines,
         "seed_derivation": "numpy SeedSequence(seed) children: overlap-add frame j uses spawn_key (0, j), "
         "a periodic record spawn_key (1,); PCG64; one standard normal pair per line",
         "options": {
@@ -177,6 +219,9 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
             "full_scale_g": request.full_scale_g,
             "ramp_s": request.ramp_s,
             "memory_budget_mb": request.memory_budget_mb,
+            "kurtosis": request.kurtosis,
+            "skewness": request.skewness,
+            "clip": request.clip,
             **request.scaling,
         },
         "profile": {
@@ -194,6 +239,15 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         "warnings": list(plan.warnings),
         "tool": {"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__},
     }
+    if design is not None:
+        sidecar["transform"] = design.transform_block()
+        sidecar["compensation"] = design.compensation_record()
+        if plan.mode == "overlap-add":
+            block = synthesizer.block_samples
+            sidecar["seed_derivation"] += (
+                f"; non-Gaussian: sample n is sample n + {block // 2} of the Gaussian stream of the compensated "
+                f"lines, transformed and high-passed in blocks of {block} samples"
+            )
     return PreparedDrive(
         request=request,
         profile=profile,
@@ -203,6 +257,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         subtype=subtype,
         sidecar=sidecar,
         warnings=tuple(plan.warnings),
+        design=design,
     )
 
 
