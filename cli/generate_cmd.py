@@ -60,6 +60,21 @@ def _parse_quantities(text: str) -> tuple[str, ...]:
     return names
 
 
+#: Non-Gaussian options, shared with `vibsynth run`.
+kurtosis_option = click.option("--kurtosis", type=float, default=None, metavar="K",
+              help="Non-Gaussian drive with this kurtosis (3 is Gaussian; field vibration is often 4 to 8), by a "
+                   "cubic Hermite transform of the Gaussian stream, its spectrum pre-compensated so the ASD still "
+                   "meets the target. Below 3 uses the inverse (hardening) form. Out-of-range values are refused "
+                   "with the reachable range.")
+skewness_option = click.option("--skewness", type=float, default=None, metavar="S",
+              help="Non-Gaussian drive with this skewness (0 is symmetric), as --kurtosis; alone it keeps the "
+                   "kurtosis at 3.")
+clip_option = click.option("--clip", type=float, default=None, metavar="SIGMA",
+              help="Hold every sample within SIGMA x the drive's RMS (the target g RMS), e.g. 3: the Gaussian "
+                   "stream is clipped and rescaled, its spectrum pre-compensated so the ASD still meets the target. "
+                   "Cannot be combined with --kurtosis/--skewness.")
+
+
 @click.command()
 @click.argument("profile")
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), metavar="FILE",
@@ -105,18 +120,9 @@ def _parse_quantities(text: str) -> tuple[str, ...]:
               metavar="MB",
               help="Working memory for one periodic inverse FFT of the whole record; longer records are made by "
                    "overlap-add of independent frames in constant memory.")
-@click.option("--kurtosis", type=float, default=None, metavar="K",
-              help="Non-Gaussian drive with this kurtosis (3 is Gaussian; field vibration is often 4 to 8), by a "
-                   "cubic Hermite transform of the Gaussian stream, its spectrum pre-compensated so the ASD still "
-                   "meets the target. Below 3 uses the inverse (hardening) form. Out-of-range values are refused "
-                   "with the reachable range.")
-@click.option("--skewness", type=float, default=None, metavar="S",
-              help="Non-Gaussian drive with this skewness (0 is symmetric), as --kurtosis; alone it keeps the "
-                   "kurtosis at 3.")
-@click.option("--clip", type=float, default=None, metavar="SIGMA",
-              help="Hold every sample within SIGMA x the drive's RMS (the target g RMS), e.g. 3: the Gaussian "
-                   "stream is clipped and rescaled, its spectrum pre-compensated so the ASD still meets the target. "
-                   "Cannot be combined with --kurtosis/--skewness.")
+@kurtosis_option
+@skewness_option
+@clip_option
 @click.option("--quiet", is_flag=True, help="No summary and no progress bar (warnings and the caution still show).")
 def generate(profile, output, duration, rate, seed, amplitude, resolution, loop, quantities, subtype, full_scale_g,
              ramp_s, stroke_limit, velocity_limit, grms, level_db, memory_budget_mb, kurtosis, skewness, clip, quiet):

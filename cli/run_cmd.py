@@ -8,7 +8,7 @@ from pathlib import Path
 import click
 
 from cli.common import DRIVE_CAUTION, load_profile, warn
-from cli.generate_cmd import format_written, write_with_progress
+from cli.generate_cmd import clip_option, format_written, kurtosis_option, skewness_option, write_with_progress
 from cli.verify_cmd import (
     _clean,
     _dof_option,
@@ -69,13 +69,16 @@ def _folder_name(profile_name: str) -> str:
 @click.option("--grms", type=click.FloatRange(min=0, min_open=True), default=None, metavar="G",
               help="Rescale the profile to this g RMS first.")
 @click.option("--level-db", type=float, default=None, metavar="DB", help="Shift the profile by DB decibels first.")
+@kurtosis_option
+@skewness_option
+@clip_option
 @_tolerance_option
 @_grms_tolerance_option
 @_min_fraction_option
 @_resolution_option
 @_dof_option
 def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms,
-        level_db, tolerance, grms_tolerance, min_fraction, resolution, dof):
+        level_db, kurtosis, skewness, clip, tolerance, grms_tolerance, min_fraction, resolution, dof):
     """The main job: generate a drive for PROFILE, verify it, write everything into one folder.
 
     PROFILE defaults to the bundled preset `parcel-conveyor` (invented demo
@@ -110,6 +113,9 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
         velocity_limit_m_s=velocity_limit,
         profile_source=spec,
         scaling={"grms": grms, "level_db": level_db},
+        kurtosis=kurtosis,
+        skewness=skewness,
+        clip=clip,
     )
     # Check the verification options before any work is done.
     from cli.verify_cmd import parse_tolerance

@@ -140,6 +140,16 @@ def format_verification(result, name: str) -> str:
         ("amplitude", f"mean {s['mean']:+.3g} g, skewness {s['skewness']:+.3f}, kurtosis {s['kurtosis']:.3f}, "
                       f"crest factor {s['crest_factor']:.2f} (peak {s['peak']:.4g} g)"),
     ]
+    c = result.criteria
+    targets = []
+    if c.kurtosis_target is not None:
+        targets.append(f"kurtosis {s['kurtosis']:.3f} against {c.kurtosis_target:g} (±{c.kurtosis_tolerance_percent:g} %)")
+    if c.skewness_target is not None:
+        targets.append(f"skewness {s['skewness']:+.3f} against {c.skewness_target:+g} (±{c.skewness_tolerance:g})")
+    if c.crest_factor_limit is not None:
+        targets.append(f"crest factor {s['crest_factor']:.3f}, limit {c.crest_factor_limit:g}")
+    if targets:
+        rows.append(("asked for", "; ".join(targets)))
     if s.get("davenport_expected_peak_sigma"):
         rows.append(("peaks", f"largest {s['largest_peak_sigma']:.2f} σ; Davenport expects "
                               f"{s['davenport_expected_peak_sigma']:.2f} ± {s['davenport_peak_std_sigma']:.2f} σ "

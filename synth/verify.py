@@ -40,7 +40,7 @@ from synth.welch import WelchAccumulator, WelchEstimate, choose_nperseg
 
 
 #: The amplitude histogram spans +/- this many standard deviations ...
-HISTOGRAM_RANGE_SIGMA = 8
+HISTOGRAM_RANGE_SIGMA = 12
 #: ... with this many bins per standard deviation.
 HISTOGRAM_BINS_PER_SIGMA = 8
 
