@@ -16,11 +16,12 @@ MC_WARN_SAMPLES = 200_000_000
 
 
 def _percent(p: float) -> str:
+    """A probability as a percentage, in one style for every magnitude."""
     if p == 0:
-        return "0"
-    if p >= 1e-3:
+        return "0 %"
+    if p >= 1e-5:
         return f"{100 * p:.3g} %"
-    return f"{p:.2e}"
+    return f"{100 * p:.2e} %"
 
 
 def _peak_cell(peak, rms_g: float) -> str:
