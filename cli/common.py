@@ -6,7 +6,6 @@ import sys
 
 import click
 
-from synth.errors import InputError
 
 #: Printed (to stderr) whenever a drive file is written.
 DRIVE_CAUTION = (

@@ -7,6 +7,7 @@ on stderr and exit status 2, never a traceback.
 
 from __future__ import annotations
 
+import math
 import sys
 
 import click
@@ -36,6 +37,26 @@ def cli():
     """
 
 
+class _FiniteNumber:
+    """Mixin for click's float types: refuse nan and +/-inf, which ``float()`` and range checks let through."""
+
+    def convert(self, value, param, ctx):
+        number = super().convert(value, param, ctx)
+        if isinstance(number, float) and not math.isfinite(number):
+            self.fail(f"{value!r} is not a finite number", param, ctx)
+        return number
+
+
+def _finite(param_type: click.ParamType) -> click.ParamType:
+    """The same float type (range, metavar and help unchanged) that also refuses nan and +/-inf."""
+    if not isinstance(param_type, click.types.FloatParamType) or isinstance(param_type, _FiniteNumber):
+        return param_type
+    kind = type(f"Finite{type(param_type).__name__}", (_FiniteNumber, type(param_type)), {})
+    finite = kind.__new__(kind)
+    finite.__dict__.update(vars(param_type))
+    return finite
+
+
 def _register() -> None:
     from cli import info_cmd
 
@@ -57,6 +78,10 @@ def _register() -> None:
             command = getattr(module, name, None)
             if command is not None:
                 cli.add_command(command)
+    # Every number a user types must be finite: nan or inf reaching synth/ could only fail late or obscurely.
+    for command in cli.commands.values():
+        for param in command.params:
+            param.type = _finite(param.type)
 
 
 _register()

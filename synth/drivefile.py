@@ -31,7 +31,13 @@ folder (``.NAME.PID.partial``) and renamed over the destination only when
 complete, data first, sidecar last (an older sidecar is removed just before
 the data is renamed, so an old sidecar never describes a new file).  A run
 that stops with an exception removes its temporary files; a killed run
-leaves the destination as it was (and at most a ``.partial`` file).
+leaves the destination as it was (and at most a ``.partial`` file).  The next
+write to the same destination removes such stale partial files: those whose
+writing process no longer runs on this machine and that have not changed for
+:data:`STALE_PARTIAL_AGE_S` seconds (a writer on another machine sharing the
+folder keeps its file changing).  Killed between the two renames of the
+commit (a few microseconds), a run leaves the old data without a sidecar, or
+the new data without one; never a sidecar describing the other file.
 
 The sidecar is ``FILE + ".json"``.  :func:`open_drive` reads any of the four
 formats back in chunks in constant memory, checking the sidecar against the
@@ -46,10 +52,14 @@ RFC 8259 (JSON).
 
 from __future__ import annotations
 
+import io
 import itertools
 import json
 import math
 import os
+import re
+import shutil
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Iterator
@@ -88,6 +98,17 @@ _BYTES_PER_SAMPLE = {"float": 4, "pcm24": 3, "pcm16": 2}
 _WAV_MAX_DATA_BYTES = 2**32 - 1 - 4096  # RIFF size field is 32 bits; keep room for the header
 _CSV_TIME_FORMAT = "%.9f"
 _CSV_VALUE_FORMAT = "%.9g"
+#: Longest text of one value written with _CSV_VALUE_FORMAT: sign, 9 digits, point, "e-" and 3 exponent digits.
+_CSV_VALUE_MAX_CHARS = 16
+#: FLAC bound: per-frame overhead (frame header <= 16 bytes, subframe header, byte padding, CRC-16) and the
+#: smallest block size libFLAC uses at any compression level (1152 samples), plus room for metadata blocks.
+_FLAC_FRAME_OVERHEAD_BYTES = 20
+_FLAC_MIN_BLOCK_SAMPLES = 1152
+_FLAC_METADATA_BYTES = 64 * 1024
+#: A partial file of a process that no longer runs, unchanged for this long (s), is removed as stale.
+STALE_PARTIAL_AGE_S = 60.0
+#: Room kept for the JSON sidecar (a few kB in practice).
+SIDECAR_ALLOWANCE_BYTES = 64 * 1024
 
 
 # ----------------------------------------------------------------- naming
@@ -175,6 +196,162 @@ def _partial_name(path: Path, tag: str = "") -> Path:
     raise AssertionError("unreachable")  # pragma: no cover
 
 
+def _format_bytes(count: int) -> str:
+    for unit, size in (("TB", 10**12), ("GB", 10**9), ("MB", 10**6), ("kB", 10**3)):
+        if count >= size:
+            return f"{count / size:.3g} {unit}"
+    return f"{count} bytes"
+
+
+def estimate_file_bytes(file_format: str, subtype: str, samples: int, quantities=("acceleration",),
+                        rate_hz: float = 1.0) -> tuple[int, bool]:
+    """Size of a drive file before it is written: exact for .wav/.npy, an upper bound for .flac/.csv.
+
+    Parameters
+    ----------
+    file_format : {"wav", "flac", "csv", "npy"}
+    subtype : str
+        Sample format (see :data:`SUBTYPES`).
+    samples : int
+        Number of samples (rows).
+    quantities : sequence of str
+        Columns (.csv/.npy).
+    rate_hz : float
+        Sample rate in Hz (sets the width of the .csv time column).
+
+    Returns
+    -------
+    (int, bool)
+        Bytes, and whether the figure is exact (False: an upper bound).
+
+    Notes
+    -----
+    .wav: the header libsndfile writes (measured by writing an empty file in
+    memory) plus the sample bytes, padded to an even length (RIFF chunks are
+    word aligned).  .npy: the NEP 1 header plus 8 bytes per value.  .flac:
+    the size of verbatim (uncompressed) subframes, which the encoder never
+    exceeds since verbatim is always one of its candidates, plus frame
+    overhead and metadata.  .csv: the widest row the format strings can give.
+
+    References
+    ----------
+    Microsoft/IBM RIFF WAVE format; NumPy NEP 1 (.npy format); FLAC format
+    specification (xiph.org), verbatim subframes and frame header layout.
+    """
+    count = int(samples)
+    columns = len(tuple(quantities))
+    if file_format == "npy":
+        buffer = io.BytesIO()
+        shape = (count,) if columns == 1 else (count, columns)
+        np.lib.format.write_array_header_1_0(buffer, {"descr": "<f8", "fortran_order": False, "shape": shape})
+        return buffer.tell() + 8 * count * columns, True
+    if file_format == "wav":
+        buffer = io.BytesIO()
+        with soundfile.SoundFile(buffer, mode="w", samplerate=8000, channels=1, format="WAV",
+                                 subtype=_SOUNDFILE_SUBTYPE[subtype]):
+            pass
+        data = count * _BYTES_PER_SAMPLE[subtype]
+        return len(buffer.getvalue()) + data + data % 2, True
+    if file_format == "flac":
+        frames = -(-count // _FLAC_MIN_BLOCK_SAMPLES)
+        return (count * _BYTES_PER_SAMPLE[subtype] + frames * _FLAC_FRAME_OVERHEAD_BYTES
+                + _FLAC_METADATA_BYTES), False
+    last_time = len(_CSV_TIME_FORMAT % (max(count - 1, 0) / float(rate_hz)))
+    header = len("time_s") + sum(1 + len(COLUMN_NAMES.get(q, q)) for q in quantities) + 1
+    return header + count * (last_time + columns * (1 + _CSV_VALUE_MAX_CHARS) + 1), False
+
+
+def check_free_space(path, needed_bytes: int, exact: bool = True) -> None:
+    """Refuse up front when the destination's folder cannot hold a file of ``needed_bytes``.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Destination file (its folder must exist).
+    needed_bytes : int
+        Size of the file to write, bytes (a sidecar allowance is added).
+    exact : bool
+        Whether ``needed_bytes`` is exact or an upper bound (for the message).
+
+    Raises
+    ------
+    InputError
+        Naming the size needed, the space free and the folder.
+
+    References
+    ----------
+    POSIX statvfs (free blocks available to unprivileged users), through
+    :func:`shutil.disk_usage`.
+    """
+    folder = Path(path).parent
+    try:
+        free = int(shutil.disk_usage(folder).free)
+    except OSError:  # the file system will not say; the write itself will tell
+        return
+    needed = int(needed_bytes) + SIDECAR_ALLOWANCE_BYTES
+    if needed > free:
+        size = _format_bytes(needed) if exact else f"up to {_format_bytes(needed)}"
+        raise InputError(
+            f"not enough disk space: the file and its sidecar need {size} ({needed} bytes) but folder "
+            f"{str(folder)!r} has {_format_bytes(free)} ({free} bytes) free; free some space, write to another "
+            "folder, or ask for a shorter record",
+            str(path),
+        )
+
+
+def _process_runs(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)  # signal 0: existence and permission check only (POSIX)
+    except ProcessLookupError:
+        return False
+    except (OSError, OverflowError):  # not ours to signal, or cannot tell: treat as running
+        return True
+    return True
+
+
+def remove_stale_partials(path, min_age_s: float = STALE_PARTIAL_AGE_S) -> list:
+    """Remove the temporary files a killed writer left for this destination (see "Atomic writing").
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Destination drive file.
+    min_age_s : float
+        A partial file must be unchanged for this many seconds to be stale.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The files removed (none on systems other than POSIX).
+
+    References
+    ----------
+    POSIX kill(2) with signal 0 (process existence check).
+    """
+    path = Path(path)
+    if os.name != "posix":
+        return []
+    pattern = re.compile(rf"\.{re.escape(path.name)}(?:\.json)?\.(\d+)(?:\.\d+)?\.partial")
+    removed = []
+    try:
+        entries = list(os.scandir(path.parent))
+    except OSError:
+        return removed
+    now = time.time()
+    for entry in entries:
+        match = pattern.fullmatch(entry.name)
+        if not match or int(match.group(1)) == os.getpid() or _process_runs(int(match.group(1))):
+            continue
+        try:
+            if not entry.is_file(follow_symlinks=False) or now - entry.stat(follow_symlinks=False).st_mtime < min_age_s:
+                continue
+            os.unlink(entry.path)
+        except OSError:
+            continue
+        removed.append(Path(entry.path))
+    return removed
+
+
 def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
                         scale: float = 1.0) -> dict:
     """Check that a drive file can be written as asked, before any work is done (no file is created).
@@ -193,7 +370,9 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
     ------
     InputError
         Unknown suffix or sample format, columns the format cannot hold, a
-        rate the format cannot store, a .wav beyond 4 GB, a missing folder.
+        rate the format cannot store, a .wav beyond 4 GB, a missing folder,
+        or a folder without the disk space the file needs (see
+        :func:`estimate_file_bytes`).
 
     References
     ----------
@@ -236,6 +415,7 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
         raise InputError(f"folder {str(path.parent)!r} does not exist; create it first", str(path))
     if path.is_dir():
         raise InputError("is a folder; give a file name such as drive.flac", str(path))
+    check_free_space(path, *estimate_file_bytes(file_format, subtype, count, quantities, rate))
     return {"format": file_format, "subtype": subtype, "quantities": quantities, "rate_hz": rate,
             "samples": count, "scale": scale}
 
@@ -290,6 +470,7 @@ class DriveWriter:
         self.written = 0
         self._peak = 0.0
         self._committed = False
+        remove_stale_partials(self.path)
         self._temporary = _partial_name(self.path)
         self._sidecar_temporary: Path | None = None
         self._handle = None
@@ -350,11 +531,11 @@ class DriveWriter:
             self._handle.write((self._csv_row * count) % tuple(table.ravel().tolist()))
         self.written += count
 
-    def _refuse(self, normalised: np.ndarray, limit: float) -> None:
-        over = np.flatnonzero(np.abs(normalised) > limit)
+    def _refuse(self, values: np.ndarray, normalised: np.ndarray, limit: float) -> None:
+        over = np.flatnonzero(~(np.abs(normalised) <= limit))
         if over.size:
             index = int(over[0])
-            value = float(normalised[index]) * self.scale
+            value = float(values[index])
             raise InputError(
                 f"sample {self.written + index} is {value:.6g} g, beyond the full scale of {self.scale:.6g} g; "
                 "raise the full scale (or let it follow the record's peak) - samples are never clipped",
@@ -362,14 +543,15 @@ class DriveWriter:
             )
 
     def _write_audio(self, values: np.ndarray) -> None:
-        if self.subtype == "float":
-            normalised = (values / self.scale).astype(np.float32)
-            self._refuse(normalised, 1.0)
-            self._handle.write(normalised)
-            return
-        bits = _PCM_BITS[self.subtype]
-        counts = np.rint(values * (2.0 ** (bits - 1) / self.scale))
-        self._refuse(counts / 2.0 ** (bits - 1), (2 ** (bits - 1) - 1) / 2.0 ** (bits - 1))
+        with np.errstate(over="ignore"):  # a value beyond full scale is refused just below
+            if self.subtype == "float":
+                normalised = (values / self.scale).astype(np.float32)
+                self._refuse(values, normalised, 1.0)
+                self._handle.write(normalised)
+                return
+            bits = _PCM_BITS[self.subtype]
+            counts = np.rint(values * (2.0 ** (bits - 1) / self.scale))
+        self._refuse(values, counts / 2.0 ** (bits - 1), (2 ** (bits - 1) - 1) / 2.0 ** (bits - 1))
         if bits == 16:
             self._handle.write(counts.astype(np.int16))
         else:  # libsndfile stores the top 24 bits of a left-justified int32
@@ -402,6 +584,8 @@ class DriveWriter:
         if self.written != self.samples:
             raise InputError(f"{self.written} samples written, {self.samples} announced", str(self.path))
         self._close()
+        if self.format == "wav":
+            _zero_peak_time_stamp(self._temporary)
         sidecar = self.sidecar()
         self._sidecar_temporary = _partial_name(self.path, ".json")
         with open(self._sidecar_temporary, "w", encoding="utf-8") as handle:
@@ -443,6 +627,30 @@ class DriveWriter:
     def __exit__(self, kind, value, traceback) -> None:
         if kind is not None or not self._committed:
             self.abort()
+
+
+def _zero_peak_time_stamp(path: Path) -> None:
+    """Zero the time stamp libsndfile puts in a float WAV's PEAK chunk, so equal samples give equal bytes.
+
+    The PEAK chunk holds a version, the writing time (s since 1970) and each channel's peak
+    value and position; only the time is cleared (0: unknown).
+    """
+    with open(path, "r+b") as handle:
+        riff = handle.read(12)
+        if riff[:4] != b"RIFF" or riff[8:12] != b"WAVE":
+            return
+        position = 12
+        while True:
+            handle.seek(position)
+            header = handle.read(8)
+            if len(header) < 8 or header[:4] == b"data":
+                return
+            size = int.from_bytes(header[4:], "little")
+            if header[:4] == b"PEAK" and size >= 8:
+                handle.seek(position + 12)  # chunk id and size (8 bytes), then the 4-byte version
+                handle.write(bytes(4))
+                return
+            position += 8 + size + size % 2
 
 
 def write_drive(path, chunks, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
@@ -566,10 +774,23 @@ class DriveFile:
             raise InputError(f"sample range [{start}, {stop}) must lie inside [0, {self.samples}]", str(self.path))
         column = self._column(quantity)
         if self.format in ("wav", "flac"):
-            return self._iter_audio(chunk, start, stop)
+            return self._finite(self._iter_audio(chunk, start, stop), start)
         if self.format == "npy":
-            return self._iter_npy(chunk, start, stop, column)
-        return self._iter_csv(chunk, start, stop, column)
+            return self._finite(self._iter_npy(chunk, start, stop, column), start)
+        return self._finite(self._iter_csv(chunk, start, stop, column), start)
+
+    def _finite(self, chunks: Iterator[np.ndarray], start: int) -> Iterator[np.ndarray]:
+        position = start
+        for values in chunks:
+            finite = np.isfinite(values)
+            if not finite.all():
+                bad = int(np.argmin(finite))
+                raise InputError(
+                    f"sample {position + bad} is {float(values[bad])!r}, not a finite number; a drive file holds finite values",
+                    str(self.path),
+                )
+            position += values.size
+            yield values
 
     def read(self, start: int = 0, stop: int | None = None, quantity: str = "acceleration") -> np.ndarray:
         """The values of one quantity, samples ``[start, stop)``, as one float64 array."""
@@ -578,11 +799,20 @@ class DriveFile:
 
     def _iter_audio(self, chunk: int, start: int, stop: int) -> Iterator[np.ndarray]:
         with soundfile.SoundFile(str(self.path)) as handle:
-            handle.seek(start)
             position = start
+            try:
+                handle.seek(start)
+            except (RuntimeError, soundfile.LibsndfileError) as error:
+                raise InputError(f"cannot read .{self.format} data at sample {start}: {error}", str(self.path)) from None
             while position < stop:
                 count = min(chunk, stop - position)
-                data = handle.read(count, dtype="float64", always_2d=True)
+                try:
+                    data = handle.read(count, dtype="float64", always_2d=True)
+                except (RuntimeError, soundfile.LibsndfileError) as error:
+                    raise InputError(
+                        f"cannot read .{self.format} data after sample {position} (damaged or truncated file?): {error}",
+                        str(self.path),
+                    ) from None
                 if data.shape[0] != count:
                     raise InputError(f"ends after {position + data.shape[0]} samples, expected {self.samples}", str(self.path))
                 position += count
@@ -603,6 +833,12 @@ class DriveFile:
                 yield data.reshape(count, width)[:, column].astype(np.float64) * self.scale
 
     def _iter_csv(self, chunk: int, start: int, stop: int, column: int) -> Iterator[np.ndarray]:
+        try:
+            yield from self._iter_csv_rows(chunk, start, stop, column)
+        except UnicodeDecodeError as error:
+            raise InputError(f"is not a text table (byte {error.start} of a line is not UTF-8)", str(self.path)) from None
+
+    def _iter_csv_rows(self, chunk: int, start: int, stop: int, column: int) -> Iterator[np.ndarray]:
         tolerance = 0.1 / self.rate_hz
         with open(self.path, "r", encoding="utf-8", newline="") as handle:
             lines = (line for line in handle if line.strip() and not line.lstrip().startswith("#"))
@@ -617,8 +853,10 @@ class DriveFile:
                     raise InputError(f"ends after {position + len(block)} rows, expected {self.samples}", str(self.path))
                 try:
                     table = np.loadtxt(block, delimiter=",", ndmin=2, dtype=np.float64)
-                except ValueError as error:
-                    raise InputError(f"rows {position + 2}-{position + count + 1}: {error}", str(self.path)) from None
+                except ValueError:
+                    bad = _first_bad_row(block, self._columns_in_file)
+                    raise InputError(_bad_csv_row(block, self._columns_in_file), str(self.path),
+                                     f"row {position + bad + 2}") from None
                 if table.shape[1] != self._columns_in_file:
                     raise InputError(
                         f"rows {position + 2}-{position + count + 1} have {table.shape[1]} columns, the header {self._columns_in_file}",
@@ -637,6 +875,26 @@ class DriveFile:
                 yield table[:, 1 + column] * self.scale
 
 
+def _first_bad_row(block: list, width: int) -> int:
+    for index, line in enumerate(block):
+        cells = line.strip().split(",")
+        try:
+            [float(cell) for cell in cells]
+        except ValueError:
+            return index
+        if len(cells) != width:
+            return index
+    return 0
+
+
+def _bad_csv_row(block: list, width: int) -> str:
+    line = block[_first_bad_row(block, width)].strip()
+    cells = line.split(",")
+    if len(cells) != width:
+        return f"has {len(cells)} values where the header has {width} columns: {line[:60]!r}"
+    return f"{line[:60]!r} is not a row of {width} numbers separated by commas"
+
+
 def _read_sidecar(path: Path) -> dict | None:
     side = sidecar_path(path)
     if not side.exists():
@@ -645,6 +903,8 @@ def _read_sidecar(path: Path) -> dict | None:
         data = json.loads(side.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
         raise InputError(f"is not valid JSON ({error})", str(side)) from None
+    except RecursionError:
+        raise InputError("is not a drive sidecar (JSON nested too deeply)", str(side)) from None
     if not isinstance(data, dict):
         raise InputError("must hold a JSON object", str(side))
     for key in ("unit", "scale", "rate", "samples"):
@@ -663,6 +923,21 @@ def _read_sidecar(path: Path) -> dict | None:
         value = data.get(key, 0.0)
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value < 0:
             raise InputError(f"{key} {value!r} must be a number of seconds >= 0", str(side), key)
+    duration = samples / data["rate"]
+    ramps = data.get("ramp_in_s", 0.0) + data.get("ramp_out_s", 0.0)
+    if ramps > duration * (1 + 1e-9):
+        raise InputError(f"ramps of {ramps:g} s in all are longer than the {duration:g} s record", str(side), "ramp_in_s")
+    for key, kind, what in (("format", str, "text such as \"flac\""), ("options", dict, "a JSON object"),
+                            ("profile", dict, "a JSON object"), ("columns", list, "a list of column names")):
+        if key in data and not isinstance(data[key], kind):
+            raise InputError(f"{key} must be {what}, got {data[key]!r:.40}", str(side), key)
+    if "columns" in data and not all(isinstance(name, str) for name in data["columns"]):
+        raise InputError("columns must be a list of column names (text)", str(side), "columns")
+    for key in ("kurtosis", "skewness", "clip"):
+        value = data.get("options", {}).get(key)
+        if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))
+                                  or not math.isfinite(value)):
+            raise InputError(f"{key} {value!r:.40} must be a finite number or null", str(side), f"options.{key}")
     return data
 
 
@@ -709,6 +984,8 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
     path = Path(path)
     where = str(path)
     file_format = drive_format(path)
+    if path.is_dir():
+        raise InputError("is a folder, not a drive file", where)
     if not path.is_file():
         raise InputError("no such drive file", where)
     sidecar = _read_sidecar(path)
@@ -759,16 +1036,19 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
         count, width, dtype, subtype = int(shape[0]), (1 if len(shape) == 1 else int(shape[1])), numpy_dtype.str, "float64"
         rate = None
     else:
-        with open(path, "r", encoding="utf-8", newline="") as handle:
-            header = ""
-            count = 0
-            for line in handle:
-                if not line.strip() or line.lstrip().startswith("#"):
-                    continue
-                if not header:
-                    header = line
-                else:
-                    count += 1
+        header = ""
+        count = 0
+        try:
+            with open(path, "r", encoding="utf-8", newline="") as handle:
+                for line in handle:
+                    if not line.strip() or line.lstrip().startswith("#"):
+                        continue
+                    if not header:
+                        header = line
+                    else:
+                        count += 1
+        except UnicodeDecodeError as error:
+            raise InputError(f"is not a text table (byte {error.start} of a line is not UTF-8)", where) from None
         names = [cell.strip() for cell in header.strip().split(",")]
         if len(names) < 2 or names[0].lower() not in ("time_s", "time", "t", "time (s)"):
             raise InputError(
@@ -796,7 +1076,13 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
         quantities = _quantities_from_names(names[1:], where)
         width = len(names)
     elif file_format == "npy":
-        columns = (sidecar or {}).get("columns") or [COLUMN_NAMES["acceleration"]] + [f"column_{i}" for i in range(1, width)]
+        if width > 1 and not (sidecar or {}).get("columns"):
+            raise InputError(
+                f"holds {width} columns but no sidecar names them; save acceleration (g) alone as shape (n,), "
+                "or give a sidecar with 'columns'",
+                where,
+            )
+        columns = (sidecar or {}).get("columns") or [COLUMN_NAMES["acceleration"]]
         if len(columns) != width:
             raise InputError(f"sidecar lists {len(columns)} columns but the file holds {width}", side, "columns")
         quantities = _quantities_from_names(columns, where)
@@ -829,10 +1115,13 @@ __all__ = [
     "FORMATS",
     "SUBTYPES",
     "check_drive_request",
+    "check_free_space",
     "check_subtype",
     "drive_format",
+    "estimate_file_bytes",
     "full_scale_from_peak",
     "open_drive",
+    "remove_stale_partials",
     "sidecar_path",
     "write_drive",
 ]

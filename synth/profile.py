@@ -147,6 +147,19 @@ class AsdProfile:
                     where,
                     row,
                 )
+        # Every figure the tool reports comes from the closed-form moments m_p, p = -4 .. 4 (displacement
+        # to peak rate); refuse a table whose figures overflow or underflow double precision.
+        with np.errstate(all="ignore"):
+            slopes = np.log(s[1:] / s[:-1]) / np.log(f[1:] / f[:-1])
+            moments = [float(np.sum(power_law_segment_moment(f[:-1], f[1:], s[:-1], s[1:], p)))
+                       for p in (-4.0, -2.0, 0.0, 2.0, 4.0)]
+        if not (np.all(np.isfinite(slopes)) and all(math.isfinite(m) and m > 0 for m in moments)):
+            raise InputError(
+                f"the profile's figures (g RMS, velocity, displacement, spectral moments) do not fit in floating-point "
+                f"numbers (band {f[0]:g}-{f[-1]:g} Hz, ASD {s.min():g}-{s.max():g} g^2/Hz); check the units and the "
+                "exponents of the breakpoints",
+                where,
+            )
         object.__setattr__(self, "frequencies_hz", _readonly(f))
         object.__setattr__(self, "asd_g2_per_hz", _readonly(s))
 
@@ -208,8 +221,19 @@ class AsdProfile:
                     row,
                 )
             octaves = math.log2(frequency / previous_f)
+            try:
+                value = previous_s * 10.0 ** (slope * octaves / 10.0)
+            except OverflowError:
+                value = math.inf
+            if not (math.isfinite(value) and value > 0):
+                raise InputError(
+                    f"slope {slope:g} dB/octave over {octaves:.4g} octaves from {previous_s:g} g^2/Hz gives an ASD "
+                    "outside the range of floating-point numbers; check the slope",
+                    where,
+                    row,
+                )
             frequencies.append(frequency)
-            values.append(previous_s * 10.0 ** (slope * octaves / 10.0))
+            values.append(value)
         return cls(np.array(frequencies), np.array(values), name=name, description=description, source=source)
 
     # ------------------------------------------------------------- geometry
@@ -356,7 +380,7 @@ class AsdProfile:
     @property
     def irregularity_factor(self) -> float:
         """Irregularity factor ``alpha = m2 / sqrt(m0 m4)`` (1 for a narrow band; Rice 1944/45)."""
-        return self.spectral_moment(2.0) / math.sqrt(self.spectral_moment(0.0) * self.spectral_moment(4.0))
+        return self.spectral_moment(2.0) / (math.sqrt(self.spectral_moment(0.0)) * math.sqrt(self.spectral_moment(4.0)))
 
     # --------------------------------------------------------------- scaling
     def scaled(self, asd_factor: float) -> "AsdProfile":
@@ -383,7 +407,15 @@ class AsdProfile:
         target = float(grms)
         if not (math.isfinite(target) and target > 0):
             raise InputError(f"target g RMS {grms!r} must be a finite number > 0", self.source or self.name)
-        return self.scaled((target / self.grms) ** 2)
+        ratio = target / self.grms
+        factor = ratio * ratio  # not ratio ** 2, which raises OverflowError instead of giving inf
+        if not (math.isfinite(factor) and factor > 0):
+            raise InputError(
+                f"target g RMS {grms!r} would scale the ASD by {factor:g}, beyond floating-point numbers; "
+                f"the profile has {self.grms:.4g} g RMS",
+                self.source or self.name,
+            )
+        return self.scaled(factor)
 
     def with_name(self, name: str, description: str | None = None) -> "AsdProfile":
         """A copy with another name (and description)."""

@@ -176,6 +176,8 @@ def parse_csv_profile(text: str, source: str = "<csv>") -> AsdProfile:
         if not line:
             continue
         cells = [c for c in _SPLIT.split(line) if c != ""]
+        if not cells:  # separators only (e.g. ';;' from a spreadsheet's empty row): a blank line
+            continue
         row = f"row {number}"
         if not triples and not header_seen and not _looks_numeric(cells[0]):
             header_seen = True
@@ -350,7 +352,7 @@ def write_profile(profile: AsdProfile, path: str | os.PathLike) -> Path:
     else:
         raise InputError(f"cannot write a profile as '{destination.suffix}'; use .toml or .csv", str(destination))
     if not destination.parent.exists():
-        raise InputError("folder does not exist", str(destination.parent))
+        raise InputError("folder does not exist; create it first", str(destination.parent))
     temporary = destination.with_name(f".{destination.name}.partial-{os.getpid()}")
     try:
         temporary.write_text(text, encoding="utf-8")

@@ -598,17 +598,22 @@ def choose_nperseg(n_samples: int, rate_hz: float, resolution_hz: float | None =
         message = ""
         if not reached:
             need = _samples_for_dof(aim, n)
+            try:
+                need_s = need / rate
+            except OverflowError:  # a sample count beyond floating point: no record is that long
+                need_s = math.inf
             message = (f"record of {seconds:g} s gives {dof:.1f} dof at {rate / n:g} Hz resolution "
-                       f"({k} segments of {n} samples); {aim:g} dof needs at least {need / rate:g} s "
+                       f"({k} segments of {n} samples); {aim:g} dof needs at least {need_s:g} s "
                        f"at that resolution")
         return SegmentChoice(nperseg=n, resolution_hz=rate / n, segments=k, dof=dof,
                              target_dof=aim, target_reached=reached, message=message)
 
     if resolution is not None:
-        n = _pow2_at_least(rate / resolution)
-        if n > n_rec:
+        ratio = rate / resolution
+        n = _pow2_at_least(ratio) if math.isfinite(ratio) else None
+        if n is None or n > n_rec:
             raise InputError(
-                f"a resolution of {resolution:g} Hz at {rate:g} Hz needs segments of {n} samples, "
+                f"a resolution of {resolution:g} Hz at {rate:g} Hz needs segments of {n or f'{ratio:g}'} samples, "
                 f"but the record has only {n_rec} samples ({seconds:g} s); ask for a coarser "
                 f"resolution (at least {rate / max(_pow2_at_most(max(n_rec, 2)), 2):g} Hz) or a longer record",
                 location="resolution_hz",
