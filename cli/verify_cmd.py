@@ -98,21 +98,26 @@ def format_compensation(block: dict) -> str:
 
 
 def run_verification(drive, target, criteria, resolution=None, dof=None):
-    """Verify an open drive file against a target (streamed, two passes)."""
+    """Verify an open drive file against a target (streamed, two passes); errors name the file."""
     from synth.verify import verify_record
 
     start, stop = drive.steady_range
-    return verify_record(
-        lambda: drive.iter_chunks(READ_CHUNK_SAMPLES),
-        drive.rate_hz,
-        target,
-        criteria,
-        n_samples=drive.samples,
-        resolution_hz=resolution,
-        target_dof=dof,
-        skip_start_samples=start,
-        skip_end_samples=drive.samples - stop,
-    )
+    try:
+        return verify_record(
+            lambda: drive.iter_chunks(READ_CHUNK_SAMPLES),
+            drive.rate_hz,
+            target,
+            criteria,
+            n_samples=drive.samples,
+            resolution_hz=resolution,
+            target_dof=dof,
+            skip_start_samples=start,
+            skip_end_samples=drive.samples - stop,
+        )
+    except InputError as error:
+        if error.source:
+            raise
+        raise InputError(error.message, str(drive.path), error.location) from None
 
 
 def _db(value) -> str:
