@@ -64,7 +64,7 @@ def _parse_quantities(text: str) -> tuple[str, ...]:
 kurtosis_option = click.option("--kurtosis", type=float, default=None, metavar="K",
               help="Non-Gaussian drive with this kurtosis (3 is Gaussian; field vibration is often 4 to 8), by a "
                    "cubic Hermite transform of the Gaussian stream, its spectrum pre-compensated so the ASD still "
-                   "meets the target. Below 3 uses the inverse (hardening) form. Out-of-range values are refused "
+                   "meets the target. Below 3 (and for some skewed targets) the inverse (hardening) form is used. Out-of-range values are refused "
                    "with the reachable range.")
 skewness_option = click.option("--skewness", type=float, default=None, metavar="S",
               help="Non-Gaussian drive with this skewness (0 is symmetric), as --kurtosis; alone it keeps the "

@@ -155,10 +155,12 @@ def format_verification(result, name: str) -> str:
         targets.append(f"crest factor {s['crest_factor']:.3f}, limit {c.crest_factor_limit:g}")
     if targets:
         rows.append(("asked for", "; ".join(targets)))
-    if s.get("davenport_expected_peak_sigma"):
-        rows.append(("peaks", f"largest {s['largest_peak_sigma']:.2f} σ; Davenport expects "
-                              f"{s['davenport_expected_peak_sigma']:.2f} ± {s['davenport_peak_std_sigma']:.2f} σ "
-                              f"for {s['duration_s']:.4g} s (Gaussian)"))
+    if s.get("expected_peak_sampled_sigma"):
+        continuous = (f"; Davenport {s['davenport_expected_peak_sigma']:.2f} σ for the continuous signal"
+                      if s.get("davenport_expected_peak_sigma") else "")
+        rows.append(("peaks", f"largest {s['largest_peak_sigma']:.2f} σ; a Gaussian record of {s['duration_s']:.4g} s "
+                              f"sampled at this rate: {s['expected_peak_sampled_sigma']:.2f} ± "
+                              f"{s['expected_peak_sampled_std_sigma']:.2f} σ{continuous}"))
     rows.append(("crossings", f"{s['zero_upcrossing_rate_hz']:.4g} /s counted; "
                               f"{s['zero_upcrossing_rate_sampled_theory_hz']:.4g} /s expected at this rate "
                               f"(Rice {s['zero_upcrossing_rate_rice_hz']:.4g} /s continuous)"))

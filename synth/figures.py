@@ -317,9 +317,14 @@ def summary_figure(result: Verification, title: str = "", lines: tuple = ()) -> 
         f"  mean {s['mean']:+.3g} g, RMS {s['rms']:.4g} g, skewness {s['skewness']:+.3f}, kurtosis {s['kurtosis']:.3f}",
         f"  peak {s['peak']:.4g} g, crest factor {s['crest_factor']:.3f}, largest |x - mean| {s['largest_peak_sigma']:.2f} σ",
     ]
+    if s.get("expected_peak_sampled_sigma"):
+        body.append(
+            f"  expected largest |x| of a Gaussian record of {s['duration_s']:.4g} s at this rate: "
+            f"{s['expected_peak_sampled_sigma']:.2f} σ (± {s['expected_peak_sampled_std_sigma']:.2f})"
+        )
     if s.get("davenport_expected_peak_sigma"):
         body.append(
-            f"  Davenport expected largest |x| for {s['duration_s']:.4g} s: {s['davenport_expected_peak_sigma']:.2f} σ "
+            f"  Davenport, continuous signal: {s['davenport_expected_peak_sigma']:.2f} σ "
             f"(± {s['davenport_peak_std_sigma']:.2f})"
         )
     body.append(

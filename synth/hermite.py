@@ -3,10 +3,12 @@
 The memoryless transform ``y = g(u)`` of a standard Gaussian ``u`` is the
 cubic Hermite model of Winterstein (1988):
 
-* kurtosis >= 3 ("softening"): ``y = kappa (u + c3 He2(u) + c4 He3(u))`` with
+* "softening" form, used wherever it reaches the target (kurtosis above 3):
+  ``y = kappa (u + c3 He2(u) + c4 He3(u))`` with
   ``He2(u) = u^2 - 1``, ``He3(u) = u^3 - 3u`` and
   ``kappa = (1 + 2 c3^2 + 6 c4^2)^(-1/2)``;
-* kurtosis < 3 ("hardening"): the inverse form
+* "hardening" (inverse) form, for every kurtosis below 3 and for skewed
+  targets above 3 that the monotone softening cubic cannot reach: the inverse form
   ``u = z + h3 He2(z) + h4 He3(z)`` solved per sample for ``z``, then
   ``y = kappa (z - mean_offset)`` standardised to zero mean, unit variance.
 
@@ -1003,9 +1005,11 @@ def solve_cubic_hermite(skewness: float, kurtosis: float) -> HermiteTransform:
 
     Solves the exact moment equations (residual below 1e-10) for the
     coefficients of a monotone cubic, starting from Winterstein's 1988
-    closed forms. Kurtosis above 3 uses the softening form
-    ``y = kappa (u + c3 He2(u) + c4 He3(u))``; kurtosis below 3 the hardening
-    form ``u = z + h3 He2(z) + h4 He3(z)`` (solved per sample), standardised.
+    closed forms. The softening form ``y = kappa (u + c3 He2(u) + c4 He3(u))``
+    is used wherever it reaches the target; otherwise (every kurtosis below 3,
+    and skewed targets above 3 beyond the monotone softening range) the
+    hardening form ``u = z + h3 He2(z) + h4 He3(z)`` (solved per sample),
+    standardised.
     Skewness 0 with kurtosis exactly 3 gives the identity.
 
     Parameters

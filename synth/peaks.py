@@ -73,6 +73,10 @@ from scipy import special
 
 from synth.errors import InputError
 from synth.extremes import (
+    LargestPeak,
+    _continuous_rate,
+    largest_peak_from_crossing_rate,
+    sampled_crossing_rate_hz,
     davenport_expected_largest_peak_sigma,
     davenport_largest_peak_std_sigma,
 )
@@ -130,7 +134,6 @@ _CHUNK_SAMPLES = 1 << 18
 _LEVEL_SLACK = 1e-9
 
 #: Points of the level grid the largest-peak distribution is integrated on.
-_GRID_POINTS = 8001
 
 #: Sample-rate multiple of the top frequency used by default (common practice, no source).
 DEFAULT_RATE_FACTOR = 2.56
@@ -158,142 +161,6 @@ def default_rate_hz(profile: AsdProfile) -> float:
 # ---------------------------------------------------------------------------
 # Crossing rates and the largest-peak distribution
 # ---------------------------------------------------------------------------
-
-
-def sampled_crossing_rate_hz(level_sigma, lag_one_correlation: float, rate_hz: float):
-    """Up-crossings per second of a level by a sampled stationary Gaussian sequence.
-
-    ``fs P(u_n < v < u_(n+1)) = 2 fs T(v, sqrt((1 - rho1)/(1 + rho1)))``, with
-    Owen's T function; at ``v = 0`` it is Sheppard's ``fs arccos(rho1) / (2 pi)``.
-
-    Parameters
-    ----------
-    level_sigma : float or array_like
-        Level v in standard deviations (dimensionless); +/-inf give 0.
-    lag_one_correlation : float
-        Correlation coefficient rho1 between successive samples, in (-1, 1).
-    rate_hz : float
-        Sample rate fs, Hz.
-
-    Returns
-    -------
-    numpy.ndarray
-        Up-crossings per second, Hz.
-
-    References
-    ----------
-    D. B. Owen, Ann. Math. Statist. 27(4), 1956: ``Phi2(h, h; rho) = Phi(h) -
-    2 T(h, sqrt((1-rho)/(1+rho)))``; W. F. Sheppard, Phil. Trans. R. Soc. A
-    192, 1899 (orthant probability).
-    """
-    rho = float(lag_one_correlation)
-    if not -1.0 < rho < 1.0:
-        raise InputError(f"lag-one correlation {rho!r} must lie strictly between -1 and 1", "lag_one_correlation")
-    v = np.asarray(level_sigma, dtype=np.float64)
-    a = math.sqrt((1.0 - rho) / (1.0 + rho))
-    finite = np.isfinite(v)
-    out = np.zeros(v.shape)
-    out[finite] = 2.0 * float(rate_hz) * special.owens_t(v[finite], a)
-    return out
-
-
-def _continuous_rate(level_sigma, nu0_hz: float):
-    v = np.asarray(level_sigma, dtype=np.float64)
-    with np.errstate(over="ignore"):
-        return np.where(np.isfinite(v), nu0_hz * np.exp(-0.5 * np.square(np.where(np.isfinite(v), v, 0.0))), 0.0)
-
-
-@dataclass(frozen=True)
-class LargestPeak:
-    """Distribution summary of the largest |x| of a record, in units of the RMS (sigma).
-
-    Attributes
-    ----------
-    mean_sigma, std_sigma : float
-        Mean and standard deviation (dimensionless, multiples of the RMS).
-    p05_sigma, p95_sigma : float
-        5 % and 95 % points (dimensionless).
-    method : str
-        How it was obtained.
-    """
-
-    mean_sigma: float
-    std_sigma: float
-    p05_sigma: float
-    p95_sigma: float
-    method: str = ""
-
-    def to_dict(self, rms_g: float) -> dict:
-        """Plain data, with the values also in g (``rms_g`` the drive's RMS in g)."""
-        return {
-            "mean_sigma": self.mean_sigma,
-            "std_sigma": self.std_sigma,
-            "p05_sigma": self.p05_sigma,
-            "p95_sigma": self.p95_sigma,
-            "mean_g": self.mean_sigma * rms_g,
-            "std_g": self.std_sigma * rms_g,
-            "p05_g": self.p05_sigma * rms_g,
-            "p95_g": self.p95_sigma * rms_g,
-            "method": self.method,
-        }
-
-
-def largest_peak_from_crossing_rate(rate_of_level, duration_s: float, upper_limit_sigma: float | None = None,
-                                    method: str = "") -> LargestPeak:
-    """Largest |x| in T from the rate at which |x| exceeds each level (Poisson crossings).
-
-    ``F(a) = P(max |x| <= a) = exp(-T rate(a))``; the mean is
-    ``integral_0^inf (1 - F) da``, the second moment ``integral 2 a (1 - F) da``
-    (trapezoid rule on a fine grid; the integrand is smooth), quantiles by
-    interpolation of F.  With an upper limit (clipping) F jumps to 1 there.
-
-    Parameters
-    ----------
-    rate_of_level : callable
-        ``rate(a)`` for an array of levels a (sigma): expected crossings per
-        second of level a by |x| (both signs), Hz, decreasing in a.
-    duration_s : float
-        Record duration T, s.
-    upper_limit_sigma : float, optional
-        |x| never exceeds this (sigma); F = 1 from there on.
-    method : str
-        Label stored in the result.
-
-    Returns
-    -------
-    LargestPeak
-
-    References
-    ----------
-    Cramer & Leadbetter (1967), Poisson limit of high-level crossings; Davenport (1964).
-    """
-    duration = float(duration_s)
-    if not (math.isfinite(duration) and duration > 0):
-        raise InputError(f"duration {duration_s!r} s must be a finite number > 0", "duration")
-    top = 2.0
-    while float(duration * rate_of_level(np.array([top]))[0]) > 1e-12 and top < 200.0:
-        if upper_limit_sigma is not None and top >= upper_limit_sigma:
-            break
-        top *= 1.25
-    if upper_limit_sigma is not None:
-        top = min(top, float(upper_limit_sigma))
-    levels = np.linspace(0.0, top, _GRID_POINTS)
-    if upper_limit_sigma is not None and top >= upper_limit_sigma:
-        # the limit itself: F is taken from below (the jump to 1 is at the limit)
-        levels[-1] = np.nextafter(top, 0.0)
-    expected = duration * np.asarray(rate_of_level(levels), dtype=np.float64)
-    cdf = np.exp(-expected)
-    survival = -np.expm1(-expected)
-    mean = float(np.trapezoid(survival, levels))
-    second = float(np.trapezoid(2.0 * levels * survival, levels))
-    std = math.sqrt(max(second - mean * mean, 0.0))
-    grid_levels, grid_cdf = levels, cdf
-    if upper_limit_sigma is not None and top >= upper_limit_sigma:
-        grid_levels = np.append(levels, top)
-        grid_cdf = np.append(cdf, 1.0)
-    keep = np.concatenate([[True], np.diff(grid_cdf) > 0])
-    p05, p95 = np.interp([0.05, 0.95], grid_cdf[keep], grid_levels[keep])
-    return LargestPeak(mean, std, float(p05), float(p95), method)
 
 
 # ---------------------------------------------------------------------------

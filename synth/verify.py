@@ -33,6 +33,8 @@ from synth.errors import InputError
 from synth.extremes import (
     davenport_expected_largest_peak_sigma,
     davenport_largest_peak_std_sigma,
+    largest_peak_from_crossing_rate,
+    sampled_crossing_rate_hz,
 )
 from synth.profile import AsdProfile
 from synth.stats import LevelCrossingAccumulator, MomentAccumulator
@@ -486,7 +488,12 @@ def verify_record(
         both are Poisson streams of rate ``nu0 exp(-a^2/2)`` at high levels,
         the two-sided largest value uses Davenport's formula with ``2 nu0 T``
         crossings instead of ``nu0 T`` (about 0.15 sigma higher for
-        ``nu0 T`` of a few thousand).
+        ``nu0 T`` of a few thousand).  Davenport's figure is for the continuous
+        signal; ``expected_peak_sampled_sigma`` / ``expected_peak_sampled_std_sigma``
+        give the largest |x| the *samples* should show at ``rate_hz`` (Poisson
+        crossings of the sampled Gaussian sequence, Owen's T): at 2.56 samples
+        per cycle of the top frequency it is about 5 % lower, and it is what
+        ``largest_peak_sigma`` should be compared with.
 
     Raises
     ------
@@ -632,6 +639,21 @@ def verify_record(
     else:
         statistics["davenport_expected_peak_sigma"] = None
         statistics["davenport_peak_std_sigma"] = None
+    # What the samples can show: at a few samples per cycle they miss the crests, so the
+    # largest sample is lower than the continuous signal's largest value (about 5 % at
+    # 2.56 samples per cycle of the top frequency).  Poisson crossings of each level by the
+    # sampled sequence (Owen's T), both signs.
+    rho1 = lag_one_correlation(profile, rate_hz)
+    if -1.0 < rho1 < 1.0:
+        sampled = largest_peak_from_crossing_rate(
+            lambda a: 2.0 * sampled_crossing_rate_hz(a, rho1, rate_hz), duration,
+            method="Poisson crossings of the sampled Gaussian sequence (Owen's T), both signs",
+        )
+        statistics["expected_peak_sampled_sigma"] = sampled.mean_sigma
+        statistics["expected_peak_sampled_std_sigma"] = sampled.std_sigma
+    else:
+        statistics["expected_peak_sampled_sigma"] = None
+        statistics["expected_peak_sampled_std_sigma"] = None
 
     failed, reasons = [], []
     if comparison.fraction_within_tolerance < criteria.min_fraction_within:
@@ -724,6 +746,33 @@ def sampled_upcrossing_rate_hz(profile: AsdProfile, rate_hz: float) -> float:
         math.isfinite(rate_hz) and rate_hz > 0
     ):
         raise InputError(f"rate {rate_hz!r} Hz must be a finite number > 0", location="rate_hz")
+    rho = lag_one_correlation(profile, rate_hz)
+    return float(rate_hz) * math.acos(rho) / (2 * math.pi)
+
+
+def lag_one_correlation(profile: AsdProfile, rate_hz: float) -> float:
+    """Correlation coefficient of successive samples of the target process at ``rate_hz``.
+
+    ``rho_1 = integral S(f) cos(2 pi f / rate_hz) df / m0`` (Wiener-Khinchin),
+    integrated per log-log segment by adaptive quadrature.
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        One-sided ASD (g^2/Hz).
+    rate_hz : float
+        Sample rate, Hz.
+
+    Returns
+    -------
+    float
+        rho_1, dimensionless, in [-1, 1].
+
+    References
+    ----------
+    Wiener-Khinchin theorem (Bendat & Piersol 2010): the autocorrelation is
+    the cosine transform of the one-sided spectral density.
+    """
     lag_s = 1.0 / float(rate_hz)
     correlation = 0.0
     for f1, f2 in zip(profile.frequencies_hz[:-1], profile.frequencies_hz[1:]):
@@ -731,6 +780,5 @@ def sampled_upcrossing_rate_hz(profile: AsdProfile, rate_hz: float) -> float:
             lambda f: float(profile.evaluate(f)) * math.cos(2 * math.pi * f * lag_s), f1, f2, limit=200
         )
         correlation += value
-    rho = max(-1.0, min(1.0, correlation / profile.mean_square_g2))
-    return float(rate_hz) * math.acos(rho) / (2 * math.pi)
+    return max(-1.0, min(1.0, correlation / profile.mean_square_g2))
 

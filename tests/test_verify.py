@@ -537,3 +537,26 @@ def test_amplitude_targets_are_judged_when_given():
                                                        crest_factor_limit=3.0))
     assert bad.failed == ("kurtosis", "skewness", "crest_factor")
     assert {"kurtosis", "skewness", "crest_factor"} <= bad.to_dict()["rule"].keys()
+
+
+def test_expected_largest_sample_at_2_56_samples_per_cycle():
+    # At 2.56 samples per cycle of the top frequency the samples miss the crests: the mean
+    # largest |x| of many true Gaussian records (Rayleigh amplitudes, built here with numpy)
+    # matches the sampled-sequence theory (Poisson crossings with Owen's T; Owen 1956,
+    # Cramer & Leadbetter 1967) within 2 %, while Davenport's continuous-signal value
+    # (Davenport 1964, 2 nu0 T) is several percent high.
+    profile = AsdProfile([20.0, 200.0], [0.01, 0.01])
+    rate, n, records = 512.0, 1 << 14, 120
+    f = np.fft.rfftfreq(n, 1 / rate)
+    amplitude = n * np.sqrt(profile.evaluate(f) * (rate / n) / 2)
+    rng = np.random.default_rng(20261202)
+    largest = []
+    for _ in range(records):
+        lines = amplitude * (rng.standard_normal(f.size) + 1j * rng.standard_normal(f.size)) / np.sqrt(2)
+        x = np.fft.irfft(lines, n)
+        largest.append(np.max(np.abs(x - x.mean())) / x.std())
+    result = verify_record(x, rate, profile)
+    s = result.statistics
+    measured = float(np.mean(largest))
+    assert measured == pytest.approx(s["expected_peak_sampled_sigma"], rel=0.02)
+    assert s["davenport_expected_peak_sigma"] > 1.03 * measured
