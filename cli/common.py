@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import sys
 
 import click
@@ -45,3 +46,34 @@ def is_interactive_stderr() -> bool:
         return sys.stderr.isatty()
     except (AttributeError, ValueError):
         return False
+
+
+class Progress:
+    """A click progress bar on stderr (counting samples), or nothing when disabled."""
+
+    def __init__(self, enabled: bool, length: int, label: str):
+        self.bar = click.progressbar(length=length, label=label, file=sys.stderr) if enabled else None
+
+    def __enter__(self):
+        if self.bar is not None:
+            self.bar.__enter__()
+        return self
+
+    def __exit__(self, *exc):
+        if self.bar is not None:
+            self.bar.__exit__(*exc)
+
+    def __call__(self, samples: int) -> None:
+        if self.bar is not None:
+            self.bar.update(samples)
+
+
+def json_safe(value):
+    """Replace NaN/inf (not valid JSON) with None, recursively through dicts and lists."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: json_safe(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_safe(v) for v in value]
+    return value

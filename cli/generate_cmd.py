@@ -4,11 +4,10 @@ from __future__ import annotations
 
 import contextlib
 import signal
-import sys
 
 import click
 
-from cli.common import DRIVE_CAUTION, is_interactive_stderr, load_profile, warn
+from cli.common import DRIVE_CAUTION, Progress, is_interactive_stderr, load_profile, warn
 from synth import drive_job, drivefile, synthesis
 
 #: Records longer than this many samples show a progress bar (on a terminal).
@@ -31,26 +30,6 @@ def _terminate_as_interrupt():
         yield
     finally:
         signal.signal(signal.SIGTERM, previous)
-
-
-class _Progress:
-    """A click progress bar on stderr, or nothing."""
-
-    def __init__(self, enabled: bool, length: int):
-        self.bar = click.progressbar(length=length, label="generating", file=sys.stderr) if enabled else None
-
-    def __enter__(self):
-        if self.bar is not None:
-            self.bar.__enter__()
-        return self
-
-    def __exit__(self, *exc):
-        if self.bar is not None:
-            self.bar.__exit__(*exc)
-
-    def __call__(self, samples: int) -> None:
-        if self.bar is not None:
-            self.bar.update(samples)
 
 
 def _parse_quantities(text: str) -> tuple[str, ...]:
@@ -187,7 +166,7 @@ def write_with_progress(prepared, quiet: bool) -> dict:
     """Write a prepared drive, with a progress bar on a terminal and clean removal on SIGTERM."""
     total = prepared.plan.total_samples
     show = is_interactive_stderr() and not quiet and total >= PROGRESS_MIN_SAMPLES
-    with _terminate_as_interrupt(), _Progress(show, prepared.passes * total) as progress:
+    with _terminate_as_interrupt(), Progress(show, prepared.passes * total, "generating") as progress:
         return drive_job.write_prepared_drive(prepared, progress)
 
 

@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import json
-import sys
 
 import click
 
-from cli.common import is_interactive_stderr, load_profile, warn
+from cli.common import Progress, is_interactive_stderr, json_safe, load_profile, warn
 from synth import peaks as peak_stats
 from synth.nongaussian import plan_transform
 
@@ -96,24 +95,6 @@ def format_report(report) -> str:
     return "\n".join(lines)
 
 
-class _Progress:
-    def __init__(self, enabled: bool, length: int):
-        self.bar = click.progressbar(length=length, label="Monte-Carlo", file=sys.stderr) if enabled else None
-
-    def __enter__(self):
-        if self.bar is not None:
-            self.bar.__enter__()
-        return self
-
-    def __exit__(self, *exc):
-        if self.bar is not None:
-            self.bar.__exit__(*exc)
-
-    def __call__(self, samples: int) -> None:
-        if self.bar is not None:
-            self.bar.update(samples)
-
-
 @click.command()
 @click.argument("profile")
 @click.option("--duration", required=True, type=click.FloatRange(min=0, min_open=True), metavar="S",
@@ -171,27 +152,15 @@ def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, ampl
              f"{per_record / 1e6:.3g} million); this can take many minutes; lower --records or --rate "
              f"(at least {peak_stats.DEFAULT_RATE_FACTOR:g} x {target.frequency_max_hz:g} Hz) to shorten it")
     show = is_interactive_stderr() and not as_json and total > 0
-    with _Progress(show, total) as progress:
+    with Progress(show, total, "Monte-Carlo") as progress:
         report = peak_stats.peak_report(target, duration, rate_hz, transform=transform, records=records, seed=seed,
                                         amplitude=amplitude, progress=progress)
     for message in report.warnings:
         warn(message)
     if as_json:
-        click.echo(json.dumps(_clean(report.to_dict()), indent=2, allow_nan=False))
+        click.echo(json.dumps(json_safe(report.to_dict()), indent=2, allow_nan=False))
     else:
         click.echo(format_report(report))
-
-
-def _clean(value):
-    import math
-
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: _clean(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_clean(v) for v in value]
-    return value
 
 
 __all__ = ["peaks"]

@@ -7,10 +7,9 @@ from pathlib import Path
 
 import click
 
-from cli.common import DRIVE_CAUTION, load_profile, warn
+from cli.common import DRIVE_CAUTION, json_safe, load_profile, warn
 from cli.generate_cmd import clip_option, format_written, kurtosis_option, skewness_option, write_with_progress
 from cli.verify_cmd import (
-    _clean,
     _dof_option,
     _grms_tolerance_option,
     _min_fraction_option,
@@ -147,7 +146,7 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
         "profile": target.summary(),
         "generation": {key: written.get(key) for key in ("seed", "mode", "frame_length", "resolution_hz", "amplitude",
                                                            "rate", "samples", "duration_s", "scale", "peak_g")},
-        "verification": _clean(result.to_dict()),
+        "verification": json_safe(result.to_dict()),
         "figures": figures,
     }
     write_json_atomic(folder / "report.json", report)

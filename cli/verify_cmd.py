@@ -9,7 +9,7 @@ from pathlib import Path
 
 import click
 
-from cli.common import load_profile, warn
+from cli.common import json_safe, load_profile, warn
 from synth.errors import InputError
 
 #: Samples per chunk read from a drive file.
@@ -197,17 +197,6 @@ def _json_default(value):
         return str(value)
 
 
-def _clean(value):
-    """Replace NaN/inf (not JSON) with None, recursively."""
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: _clean(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_clean(v) for v in value]
-    return value
-
-
 _tolerance_option = click.option(
     "--tolerance", default="3", show_default=True, metavar="DB|LOW,HIGH",
     help="ASD tolerance band in dB: 3 for ±3 dB, or LOW,HIGH such as -2,3 "
@@ -268,11 +257,11 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     result = run_verification(drive, target, criteria, resolution, dof)
     if result.segment_message:
         warn(result.segment_message)
-    data = _clean(result.to_dict())
+    data = json_safe(result.to_dict())
     data["file"] = str(file)
     compensation = sidecar_compensation(drive)
     if compensation is not None:
-        data["compensation"] = _clean(compensation)
+        data["compensation"] = json_safe(compensation)
     if report_dir:
         folder = Path(report_dir)
         folder.mkdir(parents=True, exist_ok=True)
