@@ -15,6 +15,7 @@ then carries ``transform`` and ``compensation`` blocks.
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -26,6 +27,28 @@ from synth.profile import AsdProfile
 
 #: Samples per chunk handed to the writer.
 CHUNK_SAMPLES = 1 << 16
+
+#: Most threads a drive job makes frames on by default (the samples never depend on the number).
+MAX_DEFAULT_WORKERS = 8
+
+
+def default_workers() -> int:
+    """Threads for making frames: the CPUs this process may run on, at most :data:`MAX_DEFAULT_WORKERS`.
+
+    Returns
+    -------
+    int
+        At least 1.
+
+    References
+    ----------
+    Python ``os.sched_getaffinity`` (where available) or ``os.cpu_count``.
+    """
+    try:
+        count = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        count = os.cpu_count() or 1
+    return max(1, min(int(count), MAX_DEFAULT_WORKERS))
 
 
 @dataclass(frozen=True)
@@ -72,6 +95,9 @@ class DriveRequest:
     clip : float or None
         Crest factor limit: every sample within ``clip`` x the target g RMS
         (cannot be combined with ``kurtosis``/``skewness``).
+    workers : int or None
+        Threads that make overlap-add frames (None: :func:`default_workers`).
+        The samples are the same whatever the number, so it is not recorded.
     """
 
     output: str
@@ -93,6 +119,7 @@ class DriveRequest:
     kurtosis: float | None = None
     skewness: float | None = None
     clip: float | None = None
+    workers: int | None = None
 
 
 @dataclass(frozen=True)
@@ -193,7 +220,11 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     seed = request.seed
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % 2**53)  # exact in any JSON reader
-    synthesizer = synthesis.Synthesizer(plan, seed) if design is None else design.synthesizer(plan, seed)
+    workers = default_workers() if request.workers is None else synthesis.check_workers(request.workers)
+    if design is None:
+        synthesizer = synthesis.Synthesizer(plan, seed, workers)
+    else:
+        synthesizer = design.synthesizer(plan, seed, workers)
     sidecar = {
         "seed": seed,
         "mode": plan.mode,
@@ -239,6 +270,12 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         "warnings": list(plan.warnings),
         "tool": {"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__},
     }
+    if plan.spill_highpass is not None:
+        sidecar["spill_highpass"] = plan.spill_highpass.to_dict()
+        sidecar["seed_derivation"] += (
+            f"; overlap-add: sample n is sample n + {plan.spill_highpass.half_length} of the windowed sum of frames, "
+            "high-passed by the spill_highpass FIR (the window's leakage below the band removed)"
+        )
     if design is not None:
         sidecar["transform"] = design.transform_block()
         sidecar["compensation"] = design.compensation_record()

@@ -115,7 +115,19 @@ from synth.hermite import (
     solve_cubic_hermite,
 )
 from synth.profile import AsdProfile
-from synth.synthesis import SynthesisPlan, Synthesizer, raised_cosine_ramp
+from synth.synthesis import (  # noqa: F401 - the spill-over high-pass is defined with the synthesis and re-exported
+    _HIGHPASS_DESIGN_DB,
+    HIGHPASS_ATTENUATION_DB,
+    HIGHPASS_PASS_FRACTION,
+    HIGHPASS_STOP_FRACTION,
+    MAX_HIGHPASS_BLOCK,
+    SpillHighpass,
+    SynthesisPlan,
+    Synthesizer,
+    frame_workers,
+    ordered_map,
+    raised_cosine_ramp,
+)
 
 __all__ = [
     "COMPENSATION_MAX_FRAME_LENGTH",
@@ -150,16 +162,6 @@ PERIODIC_BYTES_PER_SAMPLE = 56
 #: Largest frame (samples) of the grid the high-pass's moment retention is computed on.
 _RETENTION_FRAME_LENGTH = 1 << 18
 
-#: Pass-band edge of the spill-over high-pass, as a fraction of the lowest band frequency.
-HIGHPASS_PASS_FRACTION = 0.95
-#: Stop-band edge of the periodic (frequency-domain) high-pass, same units.
-HIGHPASS_STOP_FRACTION = 0.5
-#: Stop-band attenuation of the overlap-add FIR high-pass, dB (guaranteed) ...
-HIGHPASS_ATTENUATION_DB = 60.0
-#: ... designed with Kaiser's formulas for this many dB (they are approximate by about 1 dB).
-_HIGHPASS_DESIGN_DB = HIGHPASS_ATTENUATION_DB + 5.0
-#: Longest overlap-add filter block (samples; the window is twice this, 128 MB at most).
-MAX_HIGHPASS_BLOCK = 1 << 23
 
 
 # ---------------------------------------------------------------------------
@@ -405,162 +407,6 @@ class StreamTransform:
 # ---------------------------------------------------------------------------
 
 
-@dataclass(frozen=True)
-class SpillHighpass:
-    """Zero-phase high-pass that removes the transform's spill-over below the band.
-
-    Attributes
-    ----------
-    pass_edge_hz : float
-        Lowest frequency passed unchanged (ripple below 0.01 dB), Hz.
-    stop_edge_hz : float
-        Highest frequency attenuated by at least the stop-band attenuation, Hz.
-    rate_hz : float
-        Sample rate, Hz.
-    half_length : int or None
-        FIR half-length D (taps ``-D .. D``) for overlap-add records; None for
-        the exact frequency-domain filter of a periodic record.
-
-    Notes
-    -----
-    FIR: ``x - h * x`` with ``h`` a Kaiser-windowed sinc low-pass (beta and
-    transition width from Kaiser's formulas for 65 dB, so that at least 60 dB
-    hold at the stop edge) normalised to
-    unit sum, so the response is exactly 0 at 0 Hz and grows as f^2 near it.
-    Periodic: the lines below the stop edge are set to 0, those above the pass
-    edge kept, with a raised-cosine transition between.
-
-    References
-    ----------
-    .. [1] J. F. Kaiser, "Nonrecursive digital filter design using the I0-sinh
-           window function", Proc. IEEE ISCAS, 1974 (window and design formulas).
-    .. [2] A. V. Oppenheim and R. W. Schafer, *Discrete-Time Signal
-           Processing*, 3rd ed., Pearson 2010 (overlap-save block convolution).
-    """
-
-    pass_edge_hz: float
-    stop_edge_hz: float
-    rate_hz: float
-    half_length: int | None = None
-
-    @staticmethod
-    def for_plan(plan: SynthesisPlan, band_low_hz: float) -> "SpillHighpass | None":
-        """The high-pass for a plan (periodic: exact; overlap-add: FIR on blocks of B samples).
-
-        Overlap-add: the filter works on blocks of ``B = hop x 2^j`` samples
-        (the smallest such B whose FIR of half-length B/2 has its stop edge at
-        or above half the lowest band frequency, by Kaiser's width formula;
-        usually B is the hop itself).
-
-        Parameters
-        ----------
-        plan : SynthesisPlan
-        band_low_hz : float
-            Lowest frequency of the target band, Hz.
-
-        Returns
-        -------
-        SpillHighpass or None
-            None when even blocks of :data:`MAX_HIGHPASS_BLOCK` samples are too
-            short for a transition below the band.
-
-        References
-        ----------
-        Kaiser (1974), transition width ``(A - 7.95) / (2.285 (L - 1) 2 pi)`` cycles per sample.
-        """
-        pass_edge = HIGHPASS_PASS_FRACTION * float(band_low_hz)
-        lowest_stop = HIGHPASS_STOP_FRACTION * float(band_low_hz)
-        if plan.mode == "periodic":
-            return SpillHighpass(pass_edge, lowest_stop, plan.rate_hz, None)
-        block = plan.hop
-        while True:
-            width = (_HIGHPASS_DESIGN_DB - 7.95) / (2.285 * 2.0 * math.pi * block) * plan.rate_hz
-            if pass_edge - width >= lowest_stop:
-                return SpillHighpass(pass_edge, pass_edge - width, plan.rate_hz, block // 2)
-            if block >= MAX_HIGHPASS_BLOCK:
-                return None
-            block *= 2
-
-    @property
-    def block_samples(self) -> int | None:
-        """Overlap-add output block B = 2 x half-length (samples); None for a periodic record."""
-        return None if self.half_length is None else 2 * int(self.half_length)
-
-    def lowpass_taps(self) -> np.ndarray:
-        """FIR low-pass taps ``h[-D .. D]`` (sum exactly 1), dimensionless."""
-        if self.half_length is None:
-            raise InputError("a periodic record's high-pass has no taps; use record_response", "highpass")
-        d = int(self.half_length)
-        beta = 0.1102 * (_HIGHPASS_DESIGN_DB - 8.7)
-        cutoff = 0.5 * (self.pass_edge_hz + self.stop_edge_hz) / self.rate_hz  # cycles per sample
-        k = np.arange(-d, d + 1, dtype=np.float64)
-        taps = 2.0 * cutoff * np.sinc(2.0 * cutoff * k) * np.kaiser(2 * d + 1, beta)
-        return taps / np.sum(taps)
-
-    def block_lowpass_spectrum(self, window_samples: int) -> np.ndarray:
-        """``rfft`` of the low-pass taps placed circularly in a window of ``window_samples``."""
-        d = int(self.half_length)
-        taps = self.lowpass_taps()
-        kernel = np.zeros(int(window_samples))
-        kernel[: d + 1] = taps[d:]
-        kernel[-d:] = taps[:d]
-        return scipy.fft.rfft(kernel)
-
-    def record_response(self, samples: int) -> np.ndarray:
-        """Real (zero-phase) response on the ``rfft`` lines of a record or frame of ``samples`` samples.
-
-        Parameters
-        ----------
-        samples : int
-            Frame length N; the lines are ``k rate_hz / N``, ``k = 0 .. N//2``.
-
-        Returns
-        -------
-        numpy.ndarray
-            Response (dimensionless; the FIR's ripple makes it slightly
-            negative in places in the stop band).
-
-        References
-        ----------
-        DTFT of a finite impulse response sampled by the DFT (Oppenheim & Schafer 2010).
-        """
-        samples = int(samples)
-        if self.half_length is None:
-            return self.response(np.arange(samples // 2 + 1) * (self.rate_hz / samples))
-        # DFT of the circularly placed taps: the exact DTFT at the lines when the taps fit the frame
-        size, step = samples, 1
-        while size < 2 * int(self.half_length) + 1:
-            size, step = size * 2, step * 2
-        if size != samples and samples % 2:
-            return self.response(np.arange(samples // 2 + 1) * (self.rate_hz / samples))
-        lowpass = self.block_lowpass_spectrum(size).real[::step]
-        return 1.0 - lowpass[: samples // 2 + 1]
-
-    def response(self, frequency_hz) -> np.ndarray:
-        """Real (zero-phase) response at the given frequencies (Hz), dimensionless."""
-        f = np.asarray(frequency_hz, dtype=np.float64)
-        if self.half_length is None:
-            position = np.clip((f - self.stop_edge_hz) / (self.pass_edge_hz - self.stop_edge_hz), 0.0, 1.0)
-            return 0.5 - 0.5 * np.cos(np.pi * position)
-        d = int(self.half_length)
-        taps = self.lowpass_taps()
-        k = np.arange(-d, d + 1, dtype=np.float64)
-        lowpass = np.cos(2.0 * np.pi * np.outer(f.ravel(), k) / self.rate_hz) @ taps
-        return (1.0 - lowpass).reshape(f.shape)
-
-    def to_dict(self) -> dict:
-        """Plain data for the sidecar."""
-        return {
-            "pass_edge_hz": self.pass_edge_hz,
-            "stop_edge_hz": self.stop_edge_hz,
-            "method": (
-                "periodic record: lines below the stop edge set to 0, raised-cosine transition to the pass edge"
-                if self.half_length is None
-                else f"zero-phase FIR x - h*x, h a Kaiser-windowed sinc low-pass of {2 * self.half_length + 1} taps "
-                f"(unit sum: exactly 0 at 0 Hz), at least {HIGHPASS_ATTENUATION_DB:g} dB below the stop edge"
-            ),
-            "applied": "after the transform, before the final scaling (a clipped drive is clipped again after it)",
-        }
 
 
 # ---------------------------------------------------------------------------
@@ -746,9 +592,9 @@ class NonGaussianDesign:
             )
         return messages
 
-    def synthesizer(self, plan: SynthesisPlan, seed) -> "NonGaussianSynthesizer":
-        """The synthesizer of a plan made by :func:`nongaussian_plan` with this design."""
-        return NonGaussianSynthesizer(plan, self, seed)
+    def synthesizer(self, plan: SynthesisPlan, seed, workers: int = 1) -> "NonGaussianSynthesizer":
+        """The synthesizer of a plan made by :func:`nongaussian_plan` with this design (``workers`` threads)."""
+        return NonGaussianSynthesizer(plan, self, seed, workers)
 
 
 def _compensation_frame_length(plan: SynthesisPlan) -> int:
@@ -962,6 +808,7 @@ def nongaussian_plan(profile: AsdProfile, plan: SynthesisPlan, transform, **comp
         transform=StreamTransform(transform),
         output_scale=design.output_scale_g,
         warnings=tuple(plan.warnings) + tuple(design.warnings()),
+        spill_highpass=None,  # the non-Gaussian synthesizer high-passes after the transform itself
     )
     return planned, design
 
@@ -988,6 +835,9 @@ class NonGaussianSynthesizer:
         From :func:`nongaussian_plan`.
     seed : int, numpy.random.SeedSequence or numpy.random.Generator
         See :func:`synth.synthesis.root_seed_sequence`.
+    workers : int
+        Threads that make the Gaussian frames and filter the blocks (default
+        1); the samples are the same bit for bit whatever the number.
 
     Notes
     -----
@@ -1005,10 +855,11 @@ class NonGaussianSynthesizer:
     Winterstein (1988); Oppenheim & Schafer (2010), overlap-save; see the module docstring.
     """
 
-    def __init__(self, plan: SynthesisPlan, design: NonGaussianDesign, seed):
+    def __init__(self, plan: SynthesisPlan, design: NonGaussianDesign, seed, workers: int = 1):
         self.plan = plan
         self.design = design
-        overrides = dict(transform=None, output_scale=1.0, ramp_in_samples=0, ramp_out_samples=0, warnings=())
+        overrides = dict(transform=None, output_scale=1.0, ramp_in_samples=0, ramp_out_samples=0, warnings=(),
+                         spill_highpass=None)
         self._shift = 0
         self._block = plan.hop
         if plan.mode == "overlap-add":
@@ -1017,7 +868,8 @@ class NonGaussianSynthesizer:
             self._shift = self._block // 2
             blocks = -(-plan.total_samples // self._block)
             overrides["total_samples"] = (blocks + 1) * self._block
-        self._stream = Synthesizer(dataclasses.replace(plan, **overrides), seed)
+        self._stream = Synthesizer(dataclasses.replace(plan, **overrides), seed, workers)
+        self.workers = self._stream.workers
         self._transform = design.transform
         self._limit = design.crest_factor_limit
         self._scale = float(plan.output_scale)
@@ -1079,24 +931,39 @@ class NonGaussianSynthesizer:
             self._record = record
         return self._record
 
+    def _filter_block(self, pair) -> np.ndarray:
+        """One output block from two consecutive transformed stretches of B samples: high-pass, clip, scale."""
+        previous, current = pair
+        hop, shift = self._block, self._shift
+        window = np.concatenate((previous, current))
+        if self._block_lowpass is None:
+            block = window[shift : shift + hop].copy()
+        else:
+            lowpass = scipy.fft.irfft(scipy.fft.rfft(window) * self._block_lowpass, n=window.size)
+            block = window[shift : shift + hop] - lowpass[shift : shift + hop]
+        return self._finish_unit(block)
+
     def _blocks(self, first_block: int, last_block: int):
         """Filtered, scaled output blocks ``first_block .. last_block`` (B samples each, unramped)."""
         hop = self._block
-        shift = self._shift
         source = self._stream.iter_chunks(hop, start=first_block * hop, stop=(last_block + 2) * hop)
-        previous = None
-        for chunk in source:
-            current = chunk[:, 0]
-            self._transform.apply(current, out=current)
-            if previous is not None:
-                window = np.concatenate((previous, current))
-                if self._block_lowpass is None:
-                    block = window[shift : shift + hop].copy()
-                else:
-                    lowpass = scipy.fft.irfft(scipy.fft.rfft(window) * self._block_lowpass, n=window.size)
-                    block = window[shift : shift + hop] - lowpass[shift : shift + hop]
-                yield self._finish_unit(block)
-            previous = current
+
+        def pairs():
+            previous = None
+            for chunk in source:
+                current = chunk[:, 0]
+                self._transform.apply(current, out=current)
+                if previous is not None:
+                    yield previous, current
+                previous = current
+
+        threads, in_flight = frame_workers(self.workers, 2 * hop)
+        blocks = ordered_map(self._filter_block, pairs(), threads, in_flight)
+        try:
+            yield from blocks
+        finally:
+            blocks.close()
+            source.close()
 
     def _iter_columns(self, chunk_samples: int, start: int, stop: int):
         if self.plan.mode == "periodic":

@@ -28,7 +28,15 @@ Two ways to make a record of any length
     sum of exactly two frames.  Memory does not grow with duration.  Frame
     ``j`` draws its randomness from its own child ``spawn_key + (0, j)`` of
     the root seed sequence, so any frame (and any stretch of the record) can
-    be made alone.
+    be made alone, and frames can be made in parallel on worker threads
+    (``Synthesizer(..., workers=k)``) with the same samples bit for bit.
+    The sine window leaks the lowest band lines down to 0 Hz (a white floor
+    about 50 dB below the band, which double integration turns into
+    displacement many times the profile's), so by default the windowed sum
+    passes the zero-phase FIR high-pass :class:`SpillHighpass` (pass edge
+    0.95 x the lowest band frequency, 60 dB below its stop edge, exactly 0 at
+    0 Hz), by uniformly partitioned overlap-save; output sample n is then
+    sample ``n + D`` of the windowed sum (D the FIR half-length).
 
 Either way the record is a deterministic function of (seed, plan): it does not
 depend on the chunk size it is read in, nor on where a read starts.
@@ -52,6 +60,11 @@ References
 Shinozuka, M. & Jan, C.-M., "Digital simulation of random processes and its
 applications", Journal of Sound and Vibration 25(1), 1972 (spectral
 representation: random-phase sums of cosines).
+Kaiser, J. F., "Nonrecursive digital filter design using the I0-sinh window
+function", Proc. IEEE ISCAS 1974 (the high-pass FIR); Oppenheim, A. V. &
+Schafer, R. W., *Discrete-Time Signal Processing*, 3rd ed., 2010 (overlap-save);
+Soo, J.-S. & Pang, K. K., "Multidelay block frequency domain adaptive filter",
+IEEE Trans. ASSP 38(2), 1990 (uniformly partitioned block convolution).
 Allen, J. B., "Short term spectral analysis, synthesis, and modification by
 discrete Fourier transform", IEEE Trans. ASSP 25(3), 1977 (overlap-add with
 windows whose squares sum to one).
@@ -64,7 +77,10 @@ spectral density, integration in the frequency domain).
 
 from __future__ import annotations
 
+import collections
+import dataclasses
 import math
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from functools import cached_property
 from typing import Callable, Iterator, Sequence
@@ -109,8 +125,134 @@ PERIODIC_BYTES_PER_SAMPLE = 48
 #: Extra bytes per sample for each velocity/displacement column (measured 16-20).
 PERIODIC_BYTES_PER_EXTRA_QUANTITY = 20
 
+#: Working memory (bytes) that frames made ahead of use on worker threads may hold: each frame in
+#: flight holds its lines and its samples (about 24 bytes per sample with the FFT's scratch).
+FRAME_PREFETCH_BYTES = 64 * 2**20
+
+#: Pass-band edge of the spill-over high-pass, as a fraction of the lowest band frequency.
+HIGHPASS_PASS_FRACTION = 0.95
+#: Stop-band edge of the periodic (frequency-domain) high-pass, same units.
+HIGHPASS_STOP_FRACTION = 0.5
+#: Stop-band attenuation of the overlap-add FIR high-pass, dB (guaranteed) ...
+HIGHPASS_ATTENUATION_DB = 60.0
+#: ... designed with Kaiser's formulas for this many dB (they are approximate by about 1 dB).
+_HIGHPASS_DESIGN_DB = HIGHPASS_ATTENUATION_DB + 5.0
+#: Longest overlap-add filter block (samples; the window is twice this, 128 MB at most).
+MAX_HIGHPASS_BLOCK = 1 << 23
+#: A Gaussian overlap-add stream is high-passed by partitioned overlap-save: the FIR of B + 1 taps
+#: in partitions of B / this many samples (FFTs of 2B / this; small FFTs stay in cache) ...
+HIGHPASS_PARTITIONS = 4
+#: ... but no shorter than this many samples (or the hop, if shorter).
+MIN_HIGHPASS_PARTITION = 4096
+
 _FRAME_STREAM = 0
 _PERIODIC_STREAM = 1
+
+
+def check_workers(workers) -> int:
+    """Number of worker threads as a positive int (the samples never depend on it).
+
+    Parameters
+    ----------
+    workers : int
+        Threads that make overlap-add frames (1: all in the calling thread).
+
+    Returns
+    -------
+    int
+
+    Raises
+    ------
+    InputError
+        Not an integer >= 1.
+
+    References
+    ----------
+    None (argument check).
+    """
+    try:
+        count = int(workers)
+    except (TypeError, ValueError):
+        raise InputError(f"workers {workers!r} must be an integer >= 1", "workers") from None
+    if isinstance(workers, (bool, np.bool_)) or count != workers or count < 1:
+        raise InputError(f"workers {workers!r} must be an integer >= 1", "workers")
+    return count
+
+
+def ordered_map(function: Callable, items, workers: int, in_flight: int) -> Iterator:
+    """``function(item)`` for each item, yielded in the order of ``items``.
+
+    With ``workers > 1`` the calls run on a pool of that many threads, at most
+    ``in_flight`` of them submitted ahead of the consumer (bounded memory), so
+    the consumer's own work (e.g. encoding and writing a file) overlaps with
+    them.  Numpy's random draws, its ufuncs and ``scipy.fft`` release the
+    interpreter lock, so frames are made in parallel.  Each call must depend
+    only on its item: the results are then the same as sequential calls, bit
+    for bit.
+
+    Parameters
+    ----------
+    function : callable
+        Called once per item.
+    items : iterable
+        Consumed in the calling thread.
+    workers : int
+        Threads (1: plain sequential calls in the calling thread).
+    in_flight : int
+        Most calls submitted and not yet yielded (>= workers).
+
+    Yields
+    ------
+    object
+        ``function(item)``, in order.
+
+    References
+    ----------
+    Python ``concurrent.futures.ThreadPoolExecutor``.
+    """
+    if workers <= 1:
+        for item in items:
+            yield function(item)
+        return
+    executor = ThreadPoolExecutor(max_workers=workers, thread_name_prefix="vibsynth")
+    pending: collections.deque = collections.deque()
+    try:
+        for item in items:
+            pending.append(executor.submit(function, item))
+            if len(pending) > in_flight:
+                yield pending.popleft().result()
+        while pending:
+            yield pending.popleft().result()
+    finally:
+        for future in pending:
+            future.cancel()
+        executor.shutdown(wait=True, cancel_futures=True)
+
+
+def frame_workers(workers: int, frame_length: int) -> tuple[int, int]:
+    """Threads and frames in flight for frames of ``frame_length`` samples within :data:`FRAME_PREFETCH_BYTES`.
+
+    Parameters
+    ----------
+    workers : int
+        Threads asked for.
+    frame_length : int
+        Samples per frame (or per filtered window).
+
+    Returns
+    -------
+    (int, int)
+        Threads to use (fewer for very long frames, at least 1) and the most
+        frames in flight.
+
+    References
+    ----------
+    None (resource sizing).
+    """
+    per_frame = 24 * max(int(frame_length), 1)
+    fit = max(1, FRAME_PREFETCH_BYTES // per_frame)
+    threads = max(1, min(int(workers), fit))
+    return threads, max(threads, min(4 * threads, fit))
 
 
 # --------------------------------------------------------------------- seeds
@@ -392,6 +534,172 @@ def periodic_memory_bytes(total_samples: int, quantity_count: int = 1) -> int:
     return int(total_samples) * per_sample
 
 
+# ------------------------------------------------------ spill-over high-pass
+@dataclass(frozen=True)
+class SpillHighpass:
+    """Zero-phase high-pass that removes spill-over below the band.
+
+    Two things put power below the band and down to 0 Hz, where integrating
+    twice turns a tiny share of the variance into large displacements: the
+    sine window of overlap-add frames (leakage of the lowest band lines) and
+    a non-Gaussian drive's memoryless transform (its self-convolutions).  A
+    periodic Gaussian record has neither.
+
+    Attributes
+    ----------
+    pass_edge_hz : float
+        Lowest frequency passed unchanged (ripple below 0.01 dB), Hz.
+    stop_edge_hz : float
+        Highest frequency attenuated by at least the stop-band attenuation, Hz.
+    rate_hz : float
+        Sample rate, Hz.
+    half_length : int or None
+        FIR half-length D (taps ``-D .. D``) for overlap-add records; None for
+        the exact frequency-domain filter of a periodic record.
+
+    Notes
+    -----
+    FIR: ``x - h * x`` with ``h`` a Kaiser-windowed sinc low-pass (beta and
+    transition width from Kaiser's formulas for 65 dB, so that at least 60 dB
+    hold at the stop edge) normalised to
+    unit sum, so the response is exactly 0 at 0 Hz and grows as f^2 near it.
+    Periodic: the lines below the stop edge are set to 0, those above the pass
+    edge kept, with a raised-cosine transition between.
+
+    References
+    ----------
+    .. [1] J. F. Kaiser, "Nonrecursive digital filter design using the I0-sinh
+           window function", Proc. IEEE ISCAS, 1974 (window and design formulas).
+    .. [2] A. V. Oppenheim and R. W. Schafer, *Discrete-Time Signal
+           Processing*, 3rd ed., Pearson 2010 (overlap-save block convolution).
+    """
+
+    pass_edge_hz: float
+    stop_edge_hz: float
+    rate_hz: float
+    half_length: int | None = None
+
+    @staticmethod
+    def for_plan(plan: SynthesisPlan, band_low_hz: float) -> "SpillHighpass | None":
+        """The high-pass for a plan (periodic: exact; overlap-add: FIR on blocks of B samples).
+
+        Overlap-add: the filter works on blocks of ``B = hop x 2^j`` samples
+        (the smallest such B whose FIR of half-length B/2 has its stop edge at
+        or above half the lowest band frequency, by Kaiser's width formula;
+        usually B is the hop itself).
+
+        Parameters
+        ----------
+        plan : SynthesisPlan
+        band_low_hz : float
+            Lowest frequency of the target band, Hz.
+
+        Returns
+        -------
+        SpillHighpass or None
+            None when even blocks of :data:`MAX_HIGHPASS_BLOCK` samples are too
+            short for a transition below the band.
+
+        References
+        ----------
+        Kaiser (1974), transition width ``(A - 7.95) / (2.285 (L - 1) 2 pi)`` cycles per sample.
+        """
+        pass_edge = HIGHPASS_PASS_FRACTION * float(band_low_hz)
+        lowest_stop = HIGHPASS_STOP_FRACTION * float(band_low_hz)
+        if plan.mode == "periodic":
+            return SpillHighpass(pass_edge, lowest_stop, plan.rate_hz, None)
+        block = plan.hop
+        while True:
+            width = (_HIGHPASS_DESIGN_DB - 7.95) / (2.285 * 2.0 * math.pi * block) * plan.rate_hz
+            if pass_edge - width >= lowest_stop:
+                return SpillHighpass(pass_edge, pass_edge - width, plan.rate_hz, block // 2)
+            if block >= MAX_HIGHPASS_BLOCK:
+                return None
+            block *= 2
+
+    @property
+    def block_samples(self) -> int | None:
+        """Overlap-add output block B = 2 x half-length (samples); None for a periodic record."""
+        return None if self.half_length is None else 2 * int(self.half_length)
+
+    def lowpass_taps(self) -> np.ndarray:
+        """FIR low-pass taps ``h[-D .. D]`` (sum exactly 1), dimensionless."""
+        if self.half_length is None:
+            raise InputError("a periodic record's high-pass has no taps; use record_response", "highpass")
+        d = int(self.half_length)
+        beta = 0.1102 * (_HIGHPASS_DESIGN_DB - 8.7)
+        cutoff = 0.5 * (self.pass_edge_hz + self.stop_edge_hz) / self.rate_hz  # cycles per sample
+        k = np.arange(-d, d + 1, dtype=np.float64)
+        taps = 2.0 * cutoff * np.sinc(2.0 * cutoff * k) * np.kaiser(2 * d + 1, beta)
+        return taps / np.sum(taps)
+
+    def block_lowpass_spectrum(self, window_samples: int) -> np.ndarray:
+        """``rfft`` of the low-pass taps placed circularly in a window of ``window_samples``."""
+        d = int(self.half_length)
+        taps = self.lowpass_taps()
+        kernel = np.zeros(int(window_samples))
+        kernel[: d + 1] = taps[d:]
+        kernel[-d:] = taps[:d]
+        return scipy.fft.rfft(kernel)
+
+    def record_response(self, samples: int) -> np.ndarray:
+        """Real (zero-phase) response on the ``rfft`` lines of a record or frame of ``samples`` samples.
+
+        Parameters
+        ----------
+        samples : int
+            Frame length N; the lines are ``k rate_hz / N``, ``k = 0 .. N//2``.
+
+        Returns
+        -------
+        numpy.ndarray
+            Response (dimensionless; the FIR's ripple makes it slightly
+            negative in places in the stop band).
+
+        References
+        ----------
+        DTFT of a finite impulse response sampled by the DFT (Oppenheim & Schafer 2010).
+        """
+        samples = int(samples)
+        if self.half_length is None:
+            return self.response(np.arange(samples // 2 + 1) * (self.rate_hz / samples))
+        # DFT of the circularly placed taps: the exact DTFT at the lines when the taps fit the frame
+        size, step = samples, 1
+        while size < 2 * int(self.half_length) + 1:
+            size, step = size * 2, step * 2
+        if size != samples and samples % 2:
+            return self.response(np.arange(samples // 2 + 1) * (self.rate_hz / samples))
+        lowpass = self.block_lowpass_spectrum(size).real[::step]
+        return 1.0 - lowpass[: samples // 2 + 1]
+
+    def response(self, frequency_hz) -> np.ndarray:
+        """Real (zero-phase) response at the given frequencies (Hz), dimensionless."""
+        f = np.asarray(frequency_hz, dtype=np.float64)
+        if self.half_length is None:
+            position = np.clip((f - self.stop_edge_hz) / (self.pass_edge_hz - self.stop_edge_hz), 0.0, 1.0)
+            return 0.5 - 0.5 * np.cos(np.pi * position)
+        d = int(self.half_length)
+        taps = self.lowpass_taps()
+        k = np.arange(-d, d + 1, dtype=np.float64)
+        lowpass = np.cos(2.0 * np.pi * np.outer(f.ravel(), k) / self.rate_hz) @ taps
+        return (1.0 - lowpass).reshape(f.shape)
+
+    def to_dict(self) -> dict:
+        """Plain data for the sidecar."""
+        return {
+            "pass_edge_hz": self.pass_edge_hz,
+            "stop_edge_hz": self.stop_edge_hz,
+            "method": (
+                "periodic record: lines below the stop edge set to 0, raised-cosine transition to the pass edge"
+                if self.half_length is None
+                else f"zero-phase FIR x - h*x, h a Kaiser-windowed sinc low-pass of {2 * self.half_length + 1} taps "
+                f"(unit sum: exactly 0 at 0 Hz), at least {HIGHPASS_ATTENUATION_DB:g} dB below the stop edge"
+            ),
+            "applied": "after overlap-add (and after the transform of a non-Gaussian drive), before the final "
+            "scaling (a clipped drive is clipped again after it)",
+        }
+
+
 # ---------------------------------------------------------------------- plan
 @dataclass(frozen=True, eq=False)
 class SynthesisPlan:
@@ -426,6 +734,12 @@ class SynthesisPlan:
         Raised-cosine fade-in/out lengths in samples.
     warnings : tuple of str
         Advisory messages found while planning (e.g. a thin anti-alias margin).
+    spill_highpass : SpillHighpass or None
+        Overlap-add only: the zero-phase FIR high-pass applied to the stream
+        (after the transform hook, before the output scale) in blocks of
+        ``B = spill_highpass.block_samples``; output sample n is then stream
+        sample ``n + B/2``.  It removes the sine window's leakage below the
+        band (see :class:`SpillHighpass`).
 
     References
     ----------
@@ -444,6 +758,7 @@ class SynthesisPlan:
     ramp_in_samples: int = 0
     ramp_out_samples: int = 0
     warnings: tuple = field(default=())
+    spill_highpass: SpillHighpass | None = None
 
     def __post_init__(self):
         object.__setattr__(self, "mode", _check_choice(self.mode, MODES, "mode"))
@@ -494,6 +809,16 @@ class SynthesisPlan:
         object.__setattr__(self, "ramp_in_samples", ramp_in)
         object.__setattr__(self, "ramp_out_samples", ramp_out)
         object.__setattr__(self, "warnings", tuple(self.warnings))
+        highpass = self.spill_highpass
+        if highpass is not None:
+            if self.mode != "overlap-add" or highpass.half_length is None:
+                raise InputError("a spill-over FIR high-pass applies to overlap-add plans only", "spill_highpass")
+            if highpass.block_samples % self.hop or highpass.rate_hz != rate:
+                raise InputError(
+                    f"the high-pass block ({highpass.block_samples} samples at {highpass.rate_hz:g} Hz) must be a "
+                    f"multiple of the hop ({self.hop}) at the plan's rate ({rate:g} Hz)",
+                    "spill_highpass",
+                )
 
     # ---------------------------------------------------------- geometry
     @property
@@ -568,6 +893,7 @@ class SynthesisPlan:
             "output_scale": self.output_scale,
             "line_variance": self.line_variance,
             "transform": None if self.transform is None else getattr(self.transform, "__name__", "custom"),
+            "spill_highpass": None if self.spill_highpass is None else self.spill_highpass.to_dict(),
         }
 
 
@@ -626,6 +952,7 @@ def plan_synthesis(
     spectrum: Callable[[np.ndarray], np.ndarray] | None = None,
     transform: Callable[[np.ndarray], np.ndarray] | None = None,
     output_scale: float | None = None,
+    spill_highpass: bool = True,
 ) -> SynthesisPlan:
     """Check the request against the profile and plan the record.
 
@@ -662,6 +989,12 @@ def plan_synthesis(
         :class:`SynthesisPlan`).
     output_scale : float, optional
         Physical g per unit of the transformed stream (default ``sqrt(sum S df)``).
+    spill_highpass : bool
+        Overlap-add plans: high-pass the stream below the band
+        (:class:`SpillHighpass`, default True) so that the sine window's
+        leakage does not reach 0 Hz (where double integration would turn it
+        into displacement far beyond the profile's).  False gives the plain
+        windowed sum of frames.
 
     Returns
     -------
@@ -773,7 +1106,7 @@ def plan_synthesis(
             f"{profile.frequency_min_hz:g}-{top:g} Hz; use a finer resolution",
             "resolution",
         )
-    return SynthesisPlan(
+    plan = SynthesisPlan(
         rate_hz=rate,
         total_samples=total,
         frame_length=frame,
@@ -787,6 +1120,16 @@ def plan_synthesis(
         ramp_out_samples=ramp_out,
         warnings=tuple(warnings),
     )
+    if spill_highpass and mode == "overlap-add":
+        highpass = SpillHighpass.for_plan(plan, profile.frequency_min_hz)
+        if highpass is None:
+            warnings.append(
+                f"the frames are too short to filter the overlap-add window's leakage below "
+                f"{profile.frequency_min_hz:g} Hz: the record asks for more displacement than the profile; "
+                "use the default resolution"
+            )
+        plan = dataclasses.replace(plan, spill_highpass=highpass, warnings=tuple(warnings))
+    return plan
 
 
 def _positive(value, what: str, unit: str) -> float:
@@ -818,22 +1161,30 @@ class Synthesizer:
     plan : SynthesisPlan
     seed : int, numpy.random.SeedSequence or numpy.random.Generator
         See :func:`root_seed_sequence`.
+    workers : int
+        Threads that make overlap-add frames (default 1: all in the calling
+        thread).  Frames are independent, so with more threads they are made
+        in parallel and ahead of the consumer; the samples are the same bit
+        for bit whatever the number.
 
     Notes
     -----
     A periodic record is computed once (on first use) and kept; an
-    overlap-add record is computed frame by frame on every pass, two frames
-    alive at a time.
+    overlap-add record is computed frame by frame on every pass, a few frames
+    alive at a time (at most :data:`FRAME_PREFETCH_BYTES` of them in flight
+    on worker threads).
 
     References
     ----------
     See the module docstring.
     """
 
-    def __init__(self, plan: SynthesisPlan, seed):
+    def __init__(self, plan: SynthesisPlan, seed, workers: int = 1):
         self.plan = plan
         self.root = root_seed_sequence(seed)
+        self.workers = check_workers(workers)
         self._record: np.ndarray | None = None
+        self._block_lowpass: np.ndarray | None = None
 
     @property
     def seed(self) -> int:
@@ -890,23 +1241,150 @@ class Synthesizer:
         return self._record
 
     def _iter_blocks(self, first_block: int, last_block: int) -> Iterator[np.ndarray]:
-        hop = self.plan.hop
-        previous = self._windowed_frame(first_block)
-        for block in range(first_block, last_block + 1):
-            following = self._windowed_frame(block + 1)
-            out = previous[hop:]
-            out += following[:hop]
-            yield out
-            previous = following
-
-    def _finish(self, columns: np.ndarray, start: int) -> None:
-        """Transform, scale and ramp (in place) a stretch of columns that starts at sample ``start``."""
         plan = self.plan
-        if plan.transform is not None:
-            transformed = np.asarray(plan.transform(columns[:, 0]), dtype=float)
-            if transformed.shape != columns[:, 0].shape:
-                raise InputError(f"transform returned shape {transformed.shape}; expected {columns[:, 0].shape}", "transform")
-            columns[:, 0] = transformed * plan.output_scale
+        hop = plan.hop
+        plan._window, plan._stream_amplitudes, plan._band  # noqa: B018 - cached before the threads read them
+        threads, in_flight = frame_workers(self.workers, plan.frame_length)
+        frames = ordered_map(self._windowed_frame, range(first_block, last_block + 2), threads, in_flight)
+        try:
+            previous = next(frames)
+            for following in frames:
+                out = previous[hop:]
+                out += following[:hop]
+                yield out
+                previous = following
+        finally:
+            frames.close()
+
+    def _raw_pieces(self, size: int, first: int, last: int) -> Iterator[np.ndarray]:
+        """Pieces ``first .. last`` of ``size`` samples (a power of two) of the windowed sum of frames.
+
+        Piece j holds samples ``[j size, (j+1) size)``; pieces before sample 0 are zeros.
+        """
+        for _ in range(first, min(last, -1) + 1):
+            yield np.zeros(size)
+        first = max(first, 0)
+        if last < first:
+            return
+        hop = self.plan.hop
+        if size <= hop:
+            per = hop // size
+            blocks = self._iter_blocks(first * size // hop, last * size // hop)
+            try:
+                skip = first % per
+                for block in blocks:
+                    for k in range(skip, per):
+                        if first > last:
+                            return
+                        yield block[k * size : (k + 1) * size]
+                        first += 1
+                    skip = 0
+            finally:
+                blocks.close()
+            return
+        per = size // hop
+        blocks = self._iter_blocks(first * per, (last + 1) * per - 1)
+        try:
+            for _ in range(first, last + 1):
+                yield np.concatenate([next(blocks) for _ in range(per)])
+        finally:
+            blocks.close()
+
+    def _transformed(self, values: np.ndarray) -> np.ndarray:
+        transformed = np.asarray(self.plan.transform(values), dtype=float)
+        if transformed.shape != values.shape:
+            raise InputError(f"transform returned shape {transformed.shape}; expected {values.shape}", "transform")
+        return transformed
+
+    @property
+    def filter_block_samples(self) -> int | None:
+        """Samples per high-passed output block (the partition length), or None without a high-pass."""
+        highpass = self.plan.spill_highpass
+        if highpass is None:
+            return None
+        block = highpass.block_samples
+        # at most B/2, so that the direct term (stream sample n + B/2) starts on a partition
+        return min(max(block // HIGHPASS_PARTITIONS, min(MIN_HIGHPASS_PARTITION, self.plan.hop)), block // 2)
+
+    def _partitions(self) -> tuple:
+        """Partition length P, the kernel's partitions' spectra (rfft of 2P each) and the lag B/P."""
+        if self._block_lowpass is None:
+            highpass = self.plan.spill_highpass
+            size = self.filter_block_samples
+            taps = highpass.lowpass_taps()  # h[-D .. D], D = B/2: the causal kernel k[m] = h[m - D]
+            count = -(-taps.size // size)
+            kernel = np.zeros(count * size)
+            kernel[: taps.size] = taps
+            padded = np.zeros((count, 2 * size))
+            padded[:, :size] = kernel.reshape(count, size)
+            spectra = scipy.fft.rfft(padded, axis=1)
+            self._block_lowpass = (size, spectra, highpass.block_samples // size)
+        return self._block_lowpass
+
+    def _filtered_blocks(self, first_block: int, last_block: int) -> Iterator[np.ndarray]:
+        """High-passed output blocks ``first_block .. last_block`` of P samples (transformed and scaled, unramped).
+
+        ``x - h * x`` with ``h`` the spill high-pass's zero-phase low-pass of
+        half-length D = B/2, by uniformly partitioned overlap-save (partitions
+        of P samples, FFTs of 2P): output sample n is stream sample n + D, so
+        the filter only ever reads stream samples at or after 0.  Each output
+        block is the same function of the stream whatever range is asked for.
+        """
+        plan = self.plan
+        size, spectra, lag = self._partitions()
+        count = spectra.shape[0]
+        direct = lag // 2  # the piece holding stream samples n + D of output block o is piece o + lag/2
+        first_piece = first_block + lag - count
+        pieces = self._raw_pieces(size, first_piece, last_block + lag)
+
+        def windows():
+            previous = None
+            for piece in pieces:
+                current = piece if plan.transform is None else self._transformed(piece)
+                if previous is not None:
+                    yield previous, current
+                previous = current
+
+        def spectrum(pair):
+            return scipy.fft.rfft(np.concatenate(pair)), pair[1]
+
+        # the filter's FFTs are small and many: handing each to a thread costs more than it saves, so the
+        # filter runs in the consuming thread while the worker threads make the frames ahead of it
+        threads, in_flight = 1, 1
+
+        def outputs():
+            recent: collections.deque = collections.deque(maxlen=count)
+            kept: collections.deque = collections.deque(maxlen=lag - direct + 1)
+            for window_spectrum, piece in ordered_map(spectrum, windows(), threads, in_flight):
+                recent.append(window_spectrum)
+                kept.append(piece)
+                if len(recent) == count:
+                    yield tuple(recent), kept[0]
+
+        def block(item):
+            recent, piece = item
+            accumulated = recent[-1] * spectra[0]
+            product = np.empty_like(accumulated)
+            for q in range(1, count):
+                accumulated += np.multiply(recent[-1 - q], spectra[q], out=product)
+            lowpass = scipy.fft.irfft(accumulated, n=2 * size, overwrite_x=True)
+            out = piece - lowpass[size:]
+            if plan.transform is not None:
+                out *= plan.output_scale
+            return out
+
+        blocks = ordered_map(block, outputs(), threads, in_flight)
+        try:
+            yield from blocks
+        finally:
+            blocks.close()
+            pieces.close()
+
+    def _finish(self, columns: np.ndarray, start: int, transformed: bool = False) -> None:
+        """Transform, scale (unless ``transformed``) and ramp (in place) a stretch of columns that starts at ``start``."""
+        plan = self.plan
+        if plan.transform is not None and not transformed:
+            columns[:, 0] = self._transformed(columns[:, 0]) * plan.output_scale
         stop = start + columns.shape[0]
         ramp_in, ramp_out, total = plan.ramp_in_samples, plan.ramp_out_samples, plan.total_samples
         if ramp_in and start < ramp_in:
@@ -924,12 +1402,14 @@ class Synthesizer:
             for lo in range(start, stop, chunk_samples):
                 yield record[lo : min(stop, lo + chunk_samples)].copy()
             return
-        hop = plan.hop
+        filtered = plan.spill_highpass is not None
+        hop = self.filter_block_samples if filtered else plan.hop
         first_block, last_block = start // hop, (stop - 1) // hop
         position = first_block * hop  # absolute index of the next block's first sample
         buffer = np.empty((min(chunk_samples, stop - start), 1))
         filled, chunk_start = 0, start
-        for block in self._iter_blocks(first_block, last_block):
+        blocks = self._filtered_blocks if filtered else self._iter_blocks
+        for block in blocks(first_block, last_block):
             lo = max(start - position, 0)
             hi = min(stop - position, hop)
             while lo < hi:
@@ -938,7 +1418,7 @@ class Synthesizer:
                 filled += take
                 lo += take
                 if filled == buffer.shape[0]:
-                    self._finish(buffer, chunk_start)
+                    self._finish(buffer, chunk_start, transformed=filtered)
                     yield buffer
                     chunk_start += filled
                     filled = 0
@@ -1159,10 +1639,13 @@ __all__ = [
     "QUANTITY_UNITS",
     "SynthesisPlan",
     "Synthesizer",
+    "check_workers",
     "choose_frame_length",
+    "frame_workers",
     "generate_samples",
     "iter_chunks",
     "line_amplitudes",
+    "ordered_map",
     "parse_quantities",
     "periodic_memory_bytes",
     "plan_synthesis",
