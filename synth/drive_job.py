@@ -194,7 +194,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
             "--quantities",
         )
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
-    budget_bytes = int(request.memory_budget_mb * 2**20)
+    budget_bytes = int(min(request.memory_budget_mb * 2**20, usable_memory_bytes() / 2))
     if transform is not None:
         # a non-Gaussian periodic record also holds its spectrum for the high-pass
         budget_bytes = budget_bytes * synthesis.PERIODIC_BYTES_PER_SAMPLE // nongaussian.PERIODIC_BYTES_PER_SAMPLE
@@ -350,3 +350,15 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
         sidecar=sidecar,
         progress=step,
     )
+
+
+def usable_memory_bytes() -> float:
+    """Physical memory of this machine in bytes (POSIX sysconf); 64 GiB where it cannot be read.
+
+    A memory budget above half of it is cut to half, so a periodic record never
+    plans more than the machine can hold.
+    """
+    try:
+        return float(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES"))
+    except (AttributeError, ValueError, OSError):
+        return float(64 * 2**30)

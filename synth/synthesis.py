@@ -303,6 +303,11 @@ def _child(root: np.random.SeedSequence, *key: int) -> np.random.Generator:
     return np.random.default_rng(sequence)
 
 
+
+#: Largest record, in samples, that a plan accepts (about 54 years at 51.2 kHz; far beyond any
+#: disk, but it keeps every size computation an exact integer).
+MAX_RECORD_SAMPLES = 1e14
+
 # ------------------------------------------------------------------- frames
 def line_amplitudes(line_spectrum, rate_hz: float, frame_length: int) -> np.ndarray:
     """Line magnitudes ``|X_k| = N sqrt(S(f_k) df / 2)`` for numpy's ``irfft`` (backward norm).
@@ -1039,8 +1044,22 @@ def plan_synthesis(
                 f"resolution {resolution:g} Hz is coarser than the {needed:.4g} Hz the profile needs "
                 "(lowest frequency and narrowest segment / 8); low-frequency and narrow features may be smeared"
             )
-    total = int(round(duration * rate))
-    minimum = math.ceil(rate / resolution - 1e-9)
+    samples_wanted = duration * rate
+    if not (math.isfinite(samples_wanted) and samples_wanted <= MAX_RECORD_SAMPLES):
+        raise InputError(
+            f"duration {duration:g} s at {rate:g} Hz is {samples_wanted:.3g} samples, beyond the "
+            f"{MAX_RECORD_SAMPLES:.0e} samples one record may hold; split the test into shorter records",
+            "duration",
+        )
+    frames_wanted = rate / resolution
+    if not (math.isfinite(frames_wanted) and frames_wanted <= MAX_RECORD_SAMPLES):
+        raise InputError(
+            f"resolution {resolution:g} Hz at {rate:g} Hz needs frames of {frames_wanted:.3g} samples, beyond the "
+            f"{MAX_RECORD_SAMPLES:.0e} samples one record may hold; ask for a coarser resolution",
+            "resolution",
+        )
+    total = int(round(samples_wanted))
+    minimum = math.ceil(frames_wanted - 1e-9)
     if total < minimum:
         raise InputError(
             f"duration {duration:g} s is too short for one frame at {resolution:.4g} Hz resolution "
@@ -1149,6 +1168,8 @@ def _ramp_samples(ramp_s, rate: float, what: str) -> int:
         raise InputError(f"{what} {ramp_s!r} must be a number of seconds >= 0", what) from None
     if not (math.isfinite(seconds) and seconds >= 0):
         raise InputError(f"{what} {ramp_s!r} s must be a finite number >= 0", what)
+    if not seconds * rate <= MAX_RECORD_SAMPLES:
+        raise InputError(f"{what} {seconds:g} s is longer than any record can be", what)
     return int(round(seconds * rate))
 
 
@@ -1616,7 +1637,7 @@ def rig_limit_check(profile: AsdProfile, stroke_limit_mm: float | None = None, v
         if need > limit:
             raise InputError(
                 f"the profile needs {need:.3g} mm peak-to-peak displacement (3 sigma), "
-                f"{need - limit:.3g} mm ({100 * (need / limit - 1):.0f}%) beyond the {limit:g} mm stroke limit; "
+                f"{need - limit:.3g} mm ({need / limit:.3g} x the limit) beyond the {limit:g} mm stroke limit; "
                 "refusing to write the drive",
                 "--stroke-limit",
             )
@@ -1626,7 +1647,7 @@ def rig_limit_check(profile: AsdProfile, stroke_limit_mm: float | None = None, v
         if need > limit:
             raise InputError(
                 f"the profile needs {need:.3g} m/s peak velocity (3 sigma), "
-                f"{need - limit:.3g} m/s ({100 * (need / limit - 1):.0f}%) beyond the {limit:g} m/s velocity limit; "
+                f"{need - limit:.3g} m/s ({need / limit:.3g} x the limit) beyond the {limit:g} m/s velocity limit; "
                 "refusing to write the drive",
                 "--velocity-limit",
             )

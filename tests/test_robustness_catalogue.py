@@ -302,7 +302,7 @@ CASES = [
          ("{profile}", "level 80", "between -60 and +60")),
     Case("wav-beyond-4-gb", GEN + ("-o", "{work}/d.wav", "--duration", 1e6, "--rate", RATE),
          ("{work}/d.wav", "4 GB", "use .flac or .npy")),
-    Case("npy-beyond-free-disk-space", GEN + ("-o", "{work}/d.npy", "--duration", 1e12, "--rate", RATE),
+    Case("npy-beyond-free-disk-space", GEN + ("-o", "{work}/d.npy", "--duration", 1e9, "--rate", RATE),
          ("{work}/d.npy", "not enough disk space", "free", "{work}")),
     Case("unknown-preset", ("generate", "bench-flt", "-o", "{work}/d.npy", "--duration", 10, "--rate", RATE),
          ("bench-flt", "no such file or preset", "did you mean 'bench-flat'")),
