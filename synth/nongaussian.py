@@ -122,6 +122,7 @@ from synth.synthesis import (  # noqa: F401 - the spill-over high-pass is define
     HIGHPASS_STOP_FRACTION,
     MAX_HIGHPASS_BLOCK,
     SpillHighpass,
+    RecordAccess,
     SynthesisPlan,
     Synthesizer,
     frame_workers,
@@ -818,7 +819,7 @@ def nongaussian_plan(profile: AsdProfile, plan: SynthesisPlan, transform, **comp
 # ---------------------------------------------------------------------------
 
 
-class NonGaussianSynthesizer:
+class NonGaussianSynthesizer(RecordAccess):
     """Makes the samples of a non-Gaussian record from one seed, in any order of chunks.
 
     The unit-variance Gaussian stream comes from a :class:`synth.synthesis.Synthesizer`
@@ -991,41 +992,3 @@ class NonGaussianSynthesizer:
                     filled = 0
                     buffer = np.empty((min(chunk_samples, stop - chunk_start), 1)) if chunk_start < stop else buffer
             position += hop
-
-    def _check_range(self, start, stop) -> tuple[int, int]:
-        total = self.plan.total_samples
-        start = int(start)
-        stop = total if stop is None else int(stop)
-        if not 0 <= start < stop <= total:
-            raise InputError(f"sample range [{start}, {stop}) must lie inside [0, {total})", "range")
-        return start, stop
-
-    # -------------------------------------------------------------- public
-    def iter_chunks(self, chunk_samples: int = 65536, start: int = 0, stop: int | None = None):
-        """Samples ``[start, stop)`` in g, shape (m, 1) per chunk; independent of ``chunk_samples`` and ``start``."""
-        chunk = int(chunk_samples)
-        if chunk < 1:
-            raise InputError(f"chunk size {chunk_samples!r} must be >= 1 sample", "chunk_samples")
-        start, stop = self._check_range(start, stop)
-        return self._iter_columns(chunk, start, stop)
-
-    def samples(self, start: int = 0, stop: int | None = None) -> np.ndarray:
-        """Samples ``[start, stop)`` in g as one array of shape (m, 1)."""
-        start, stop = self._check_range(start, stop)
-        if self.plan.mode == "periodic":
-            return self._periodic_record()[start:stop].copy()
-        return next(self._iter_columns(stop - start, start, stop))
-
-    def take_record(self) -> np.ndarray:
-        """The whole record in g, shape (n, 1); a periodic record is handed over and forgotten."""
-        if self.plan.mode == "periodic":
-            record = self._periodic_record()
-            self._record = None
-            return record
-        return self.samples()
-
-    def peak_abs(self, chunk_samples: int = 1 << 18) -> float:
-        """Largest |acceleration| in the record (g): a full pass in overlap-add mode."""
-        if self.plan.mode == "periodic":
-            return float(np.max(np.abs(self._periodic_record()[:, 0])))
-        return max(float(np.max(np.abs(chunk[:, 0]))) for chunk in self.iter_chunks(chunk_samples))

@@ -1174,7 +1174,57 @@ def _ramp_samples(ramp_s, rate: float, what: str) -> int:
 
 
 # ------------------------------------------------------------- synthesizer
-class Synthesizer:
+class RecordAccess:
+    """Public access to a planned record's samples, shared by the Gaussian and non-Gaussian synthesizers.
+
+    Subclasses provide ``plan`` (a :class:`SynthesisPlan`), ``_record``,
+    ``_periodic_record()`` and ``_iter_columns(chunk, start, stop)``.
+    """
+
+    def _check_range(self, start, stop) -> tuple[int, int]:
+        total = self.plan.total_samples
+        start = int(start)
+        stop = total if stop is None else int(stop)
+        if not 0 <= start < stop <= total:
+            raise InputError(f"sample range [{start}, {stop}) must lie inside [0, {total})", "range")
+        return start, stop
+
+    def iter_chunks(self, chunk_samples: int = 65536, start: int = 0, stop: int | None = None) -> Iterator[np.ndarray]:
+        """Samples ``[start, stop)`` in consecutive chunks of ``chunk_samples`` (the last may be shorter).
+
+        Yields arrays of shape (m, q): one column per quantity (acceleration
+        in g, velocity in m/s, displacement in m).  The values do not depend on
+        ``chunk_samples`` or ``start``.
+        """
+        chunk = int(chunk_samples)
+        if chunk < 1:
+            raise InputError(f"chunk size {chunk_samples!r} must be >= 1 sample", "chunk_samples")
+        start, stop = self._check_range(start, stop)
+        return self._iter_columns(chunk, start, stop)
+
+    def samples(self, start: int = 0, stop: int | None = None) -> np.ndarray:
+        """Samples ``[start, stop)`` as one array of shape (m, q)."""
+        start, stop = self._check_range(start, stop)
+        if self.plan.mode == "periodic":
+            return self._periodic_record()[start:stop].copy()
+        return next(self._iter_columns(stop - start, start, stop))
+
+    def take_record(self) -> np.ndarray:
+        """The whole record, shape (n, q); a periodic record is handed over without a copy and forgotten."""
+        if self.plan.mode == "periodic":
+            record = self._periodic_record()
+            self._record = None
+            return record
+        return self.samples()
+
+    def peak_abs(self, chunk_samples: int = 1 << 18) -> float:
+        """Largest |acceleration| in the record (g): a full pass in overlap-add mode."""
+        if self.plan.mode == "periodic":
+            return float(np.max(np.abs(self._periodic_record()[:, 0])))
+        return max(float(np.max(np.abs(chunk[:, 0]))) for chunk in self.iter_chunks(chunk_samples))
+
+
+class Synthesizer(RecordAccess):
     """Makes the samples of one planned record from one seed, in any order of chunks.
 
     Parameters
@@ -1445,48 +1495,6 @@ class Synthesizer:
                     filled = 0
                     buffer = np.empty((min(chunk_samples, stop - chunk_start), 1)) if chunk_start < stop else buffer
             position += hop
-
-    def _check_range(self, start, stop) -> tuple[int, int]:
-        total = self.plan.total_samples
-        start = int(start)
-        stop = total if stop is None else int(stop)
-        if not 0 <= start < stop <= total:
-            raise InputError(f"sample range [{start}, {stop}) must lie inside [0, {total})", "range")
-        return start, stop
-
-    def iter_chunks(self, chunk_samples: int = 65536, start: int = 0, stop: int | None = None) -> Iterator[np.ndarray]:
-        """Samples ``[start, stop)`` in consecutive chunks of ``chunk_samples`` (the last may be shorter).
-
-        Yields arrays of shape (m, q): one column per quantity (acceleration
-        in g, velocity in m/s, displacement in m).  The values do not depend on
-        ``chunk_samples`` or ``start``.
-        """
-        chunk = int(chunk_samples)
-        if chunk < 1:
-            raise InputError(f"chunk size {chunk_samples!r} must be >= 1 sample", "chunk_samples")
-        start, stop = self._check_range(start, stop)
-        return self._iter_columns(chunk, start, stop)
-
-    def samples(self, start: int = 0, stop: int | None = None) -> np.ndarray:
-        """Samples ``[start, stop)`` as one array of shape (m, q)."""
-        start, stop = self._check_range(start, stop)
-        if self.plan.mode == "periodic":
-            return self._periodic_record()[start:stop].copy()
-        return next(self._iter_columns(stop - start, start, stop))
-
-    def take_record(self) -> np.ndarray:
-        """The whole record, shape (n, q); a periodic record is handed over without a copy and forgotten."""
-        if self.plan.mode == "periodic":
-            record = self._periodic_record()
-            self._record = None
-            return record
-        return self.samples()
-
-    def peak_abs(self, chunk_samples: int = 1 << 18) -> float:
-        """Largest |acceleration| in the record (g): a full pass in overlap-add mode."""
-        if self.plan.mode == "periodic":
-            return float(np.max(np.abs(self._periodic_record()[:, 0])))
-        return max(float(np.max(np.abs(chunk[:, 0]))) for chunk in self.iter_chunks(chunk_samples))
 
 
 # ----------------------------------------------------------------- library
