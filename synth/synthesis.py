@@ -1501,11 +1501,23 @@ class Synthesizer(RecordAccess):
 def _synthesizer(profile, duration_s, rate_hz, seed, options) -> tuple[Synthesizer, bool]:
     names, single = parse_quantities(options.pop("quantities"))
     ramp = options.pop("ramp_s")
+    shape = (options.pop("kurtosis", None), options.pop("skewness", None), options.pop("clip", None))
     if ramp is not None:
         options.setdefault("ramp_in_s", ramp)
         options.setdefault("ramp_out_s", ramp)
     plan = plan_synthesis(profile, duration_s, rate_hz, quantities=names, **options)
-    return Synthesizer(plan, seed), single
+    if all(value is None for value in shape):
+        return Synthesizer(plan, seed), single
+    # Non-Gaussian: the same transform, pre-compensation and spill high-pass as `vibsynth generate`.
+    from synth import nongaussian
+
+    transform = nongaussian.plan_transform(*shape)
+    if transform is None:
+        return Synthesizer(plan, seed), single
+    if len(names) > 1:
+        raise InputError("velocity/displacement columns cannot follow a non-Gaussian acceleration", "quantities")
+    plan, design = nongaussian.nongaussian_plan(profile, plan, transform)
+    return design.synthesizer(plan, seed), single
 
 
 def generate_samples(
@@ -1520,6 +1532,9 @@ def generate_samples(
     ramp_s: float | None = None,
     quantities="acceleration",
     memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES,
+    kurtosis: float | None = None,
+    skewness: float | None = None,
+    clip: float | None = None,
 ) -> np.ndarray:
     """A Gaussian time history whose spectrum is the profile's.
 
@@ -1549,6 +1564,10 @@ def generate_samples(
         with columns in g, m/s and m, integrated in the frequency domain.
     memory_budget_bytes : int
         Working memory for one periodic record; beyond it, overlap-add.
+    kurtosis, skewness, clip : float, optional
+        A non-Gaussian drive (Pearson kurtosis, skewness, or every sample within
+        ``clip`` x RMS) with its spectrum pre-compensated, exactly as
+        ``vibsynth generate`` makes it (see :mod:`synth.nongaussian`).
 
     Returns
     -------
@@ -1565,7 +1584,8 @@ def generate_samples(
         rate_hz,
         seed,
         dict(amplitude=amplitude, resolution_hz=resolution_hz, loop=loop, ramp_s=ramp_s,
-             quantities=quantities, memory_budget_bytes=memory_budget_bytes),
+             quantities=quantities, memory_budget_bytes=memory_budget_bytes,
+             kurtosis=kurtosis, skewness=skewness, clip=clip),
     )
     samples = synthesizer.take_record()
     return samples[:, 0] if single else samples
@@ -1584,12 +1604,17 @@ def iter_chunks(
     ramp_s: float | None = None,
     quantities="acceleration",
     memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES,
+    kurtosis: float | None = None,
+    skewness: float | None = None,
+    clip: float | None = None,
 ) -> Iterator[np.ndarray]:
     """The samples of :func:`generate_samples` as consecutive chunks, in constant memory.
 
     Parameters
     ----------
     profile, duration_s, rate_hz, seed, amplitude, resolution_hz, loop, ramp_s, quantities, memory_budget_bytes
+        As for :func:`generate_samples`.
+    kurtosis, skewness, clip : float, optional
         As for :func:`generate_samples`.
     chunk_samples : int
         Samples per chunk (the last may be shorter).  The samples do not
@@ -1610,7 +1635,8 @@ def iter_chunks(
         rate_hz,
         seed,
         dict(amplitude=amplitude, resolution_hz=resolution_hz, loop=loop, ramp_s=ramp_s,
-             quantities=quantities, memory_budget_bytes=memory_budget_bytes),
+             quantities=quantities, memory_budget_bytes=memory_budget_bytes,
+             kurtosis=kurtosis, skewness=skewness, clip=clip),
     )
     for chunk in synthesizer.iter_chunks(chunk_samples):
         yield chunk[:, 0] if single else chunk

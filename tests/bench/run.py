@@ -185,7 +185,7 @@ def main() -> None:
         t_fast = best_of(lambda: generate_samples(PROFILE, n / 8192.0, 8192.0, seed=1, resolution_hz=8192.0 / n,
                                                   memory_budget_bytes=1 << 40), rounds)
         results[f"sum_of_sines_over_ours_2^{log2}"] = t_naive / t_fast
-        rows.append((f"sum of sines vs ours", f"{n} samples", f"{t_naive:.3f} s", f"{t_naive / t_fast:.0f} x slower",
+        rows.append(("sum of sines vs ours", f"{n} samples", f"{t_naive:.3f} s", f"{t_naive / t_fast:.0f} x slower",
                      "(scaling)"))
 
     # 2a. the parts of a streamed drive, in this process: the overlap-add generator alone (no file), once
