@@ -58,26 +58,12 @@ def _finite(param_type: click.ParamType) -> click.ParamType:
 
 
 def _register() -> None:
-    from cli import info_cmd
+    """Add the commands in the order a user meets them (the main job first)."""
+    from cli import generate_cmd, info_cmd, peaks_cmd, run_cmd, verify_cmd
 
-    cli.add_command(info_cmd.info)
-    cli.add_command(info_cmd.presets)
-    for module_name, names in (
-        ("cli.generate_cmd", ("generate",)),
-        ("cli.verify_cmd", ("verify",)),
-        ("cli.run_cmd", ("run",)),
-        ("cli.peaks_cmd", ("peaks",)),
-    ):
-        try:
-            module = __import__(module_name, fromlist=list(names))
-        except ModuleNotFoundError as error:
-            if error.name != module_name:
-                raise
-            continue
-        for name in names:
-            command = getattr(module, name, None)
-            if command is not None:
-                cli.add_command(command)
+    for command in (run_cmd.run, info_cmd.info, generate_cmd.generate, verify_cmd.verify, peaks_cmd.peaks,
+                    info_cmd.presets):
+        cli.add_command(command)
     # Every number a user types must be finite: nan or inf reaching synth/ could only fail late or obscurely.
     for command in cli.commands.values():
         for param in command.params:
