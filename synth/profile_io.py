@@ -279,6 +279,8 @@ def read_profile(spec: str | os.PathLike) -> AsdProfile:
             return read_preset(text_spec)
         raise InputError("no such file; give a .toml or .csv profile or a preset name (see 'vibsynth presets')", text_spec)
     if path.is_dir():
+        if path.suffix == "" and os.sep not in text_spec and text_spec in preset_names():
+            return read_preset(text_spec)  # a folder named like a preset (e.g. a run folder) does not hide it
         raise InputError("is a folder; give a .toml or .csv profile file", text_spec)
     suffix = path.suffix.lower()
     if suffix not in (".toml", ".csv", ".txt", ".dat"):

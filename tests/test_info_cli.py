@@ -160,3 +160,14 @@ def test_console_script_has_no_traceback_on_bad_input(tmp_path):
     result = subprocess.run([sys.executable, "-m", "cli.main", "info", str(bad)], capture_output=True, text=True)
     assert result.returncode == 2
     assert result.stderr.count("\n") == 1 and "Traceback" not in result.stderr
+
+
+def test_a_folder_named_like_a_preset_does_not_hide_it(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "bench-flat").mkdir()
+    status, out, err = run(["info", "bench-flat", "--json"], capsys)
+    assert status == 0, err
+    assert json.loads(out)["grms"] == pytest.approx(read_profile("bench-flat").grms)
+    (tmp_path / "other").mkdir()
+    status, _, err = run(["info", "other"], capsys)
+    assert status == 2 and "is a folder" in err
