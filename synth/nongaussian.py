@@ -899,18 +899,6 @@ class NonGaussianSynthesizer(RecordAccess):
         y *= self._scale
         return y
 
-    def _ramp(self, columns: np.ndarray, start: int) -> None:
-        plan = self.plan
-        stop = start + columns.shape[0]
-        ramp_in, ramp_out, total = plan.ramp_in_samples, plan.ramp_out_samples, plan.total_samples
-        if ramp_in and start < ramp_in:
-            hi = min(stop, ramp_in)
-            columns[: hi - start] *= raised_cosine_ramp(ramp_in)[start:hi, None]
-        if ramp_out and stop > total - ramp_out:
-            lo = max(start, total - ramp_out)
-            factors = raised_cosine_ramp(ramp_out)[::-1]
-            columns[lo - start :] *= factors[lo - (total - ramp_out) : stop - (total - ramp_out), None]
-
     def _periodic_record(self) -> np.ndarray:
         if self._record is None:
             record = self._stream.take_record()

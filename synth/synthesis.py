@@ -882,25 +882,6 @@ class SynthesisPlan:
     def _window(self) -> np.ndarray:
         return sine_window(self.frame_length)
 
-    def to_dict(self) -> dict:
-        """The plan's settings as plain data (for a sidecar)."""
-        return {
-            "mode": self.mode,
-            "frame_length": self.frame_length,
-            "resolution_hz": self.resolution_hz,
-            "amplitude": self.amplitude,
-            "rate": self.rate_hz,
-            "samples": self.total_samples,
-            "duration_s": self.duration_s,
-            "quantities": list(self.quantities),
-            "ramp_in_s": self.ramp_in_samples / self.rate_hz,
-            "ramp_out_s": self.ramp_out_samples / self.rate_hz,
-            "output_scale": self.output_scale,
-            "line_variance": self.line_variance,
-            "transform": None if self.transform is None else getattr(self.transform, "__name__", "custom"),
-            "spill_highpass": None if self.spill_highpass is None else self.spill_highpass.to_dict(),
-        }
-
 
 def _check_choice(value, allowed: Sequence[str], what: str) -> str:
     text = str(value).strip().lower()
@@ -1181,6 +1162,19 @@ class RecordAccess:
     ``_periodic_record()`` and ``_iter_columns(chunk, start, stop)``.
     """
 
+    def _ramp(self, columns: np.ndarray, start: int) -> None:
+        """Raised-cosine fade-in/out (in place) of a stretch of columns that starts at sample ``start``."""
+        plan = self.plan
+        stop = start + columns.shape[0]
+        ramp_in, ramp_out, total = plan.ramp_in_samples, plan.ramp_out_samples, plan.total_samples
+        if ramp_in and start < ramp_in:
+            hi = min(stop, ramp_in)
+            columns[: hi - start] *= raised_cosine_ramp(ramp_in)[start:hi, None]
+        if ramp_out and stop > total - ramp_out:
+            lo = max(start, total - ramp_out)
+            factors = raised_cosine_ramp(ramp_out)[::-1]
+            columns[lo - start :] *= factors[lo - (total - ramp_out) : stop - (total - ramp_out), None]
+
     def _check_range(self, start, stop) -> tuple[int, int]:
         total = self.plan.total_samples
         start = int(start)
@@ -1456,15 +1450,7 @@ class Synthesizer(RecordAccess):
         plan = self.plan
         if plan.transform is not None and not transformed:
             columns[:, 0] = self._transformed(columns[:, 0]) * plan.output_scale
-        stop = start + columns.shape[0]
-        ramp_in, ramp_out, total = plan.ramp_in_samples, plan.ramp_out_samples, plan.total_samples
-        if ramp_in and start < ramp_in:
-            hi = min(stop, ramp_in)
-            columns[: hi - start] *= raised_cosine_ramp(ramp_in)[start:hi, None]
-        if ramp_out and stop > total - ramp_out:
-            lo = max(start, total - ramp_out)
-            factors = raised_cosine_ramp(ramp_out)[::-1]
-            columns[lo - start :] *= factors[lo - (total - ramp_out) : stop - (total - ramp_out), None]
+        self._ramp(columns, start)
 
     def _iter_columns(self, chunk_samples: int, start: int, stop: int) -> Iterator[np.ndarray]:
         plan = self.plan

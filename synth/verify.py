@@ -37,6 +37,7 @@ from synth.extremes import (
     sampled_crossing_rate_hz,
 )
 from synth.profile import AsdProfile
+from synth.record_input import check_rate_hz
 from synth.stats import LevelCrossingAccumulator, MomentAccumulator
 from synth.welch import WelchAccumulator, WelchEstimate, choose_nperseg
 
@@ -603,6 +604,7 @@ def verify_record(
     duration = steady / rate_hz
     density = counts / (first.count * (edges[1] - edges[0]))
     nu0_theory = profile.zero_upcrossing_rate_hz
+    rho1 = lag_one_correlation(profile, rate_hz)
     statistics = {
         "rms": first.rms,
         "mean": first.mean,
@@ -624,7 +626,7 @@ def verify_record(
         ],
         "zero_upcrossing_rate_hz": second.upcrossing_rate_hz,
         "zero_upcrossing_rate_rice_hz": nu0_theory,
-        "zero_upcrossing_rate_sampled_theory_hz": sampled_upcrossing_rate_hz(profile, rate_hz),
+        "zero_upcrossing_rate_sampled_theory_hz": _sheppard_upcrossing_rate_hz(rho1, rate_hz),
         "largest_peak_sigma": max(first.maximum - first.mean, first.mean - first.minimum) / first.std,
         "window_s": window_s,
         "window_rms_min": min(first.window_rms) if first.window_rms else first.rms,
@@ -643,7 +645,6 @@ def verify_record(
     # largest sample is lower than the continuous signal's largest value (about 5 % at
     # 2.56 samples per cycle of the top frequency).  Poisson crossings of each level by the
     # sampled sequence (Owen's T), both signs.
-    rho1 = lag_one_correlation(profile, rate_hz)
     if -1.0 < rho1 < 1.0:
         sampled = largest_peak_from_crossing_rate(
             lambda a: 2.0 * sampled_crossing_rate_hz(a, rho1, rate_hz), duration,
@@ -742,12 +743,13 @@ def sampled_upcrossing_rate_hz(profile: AsdProfile, rate_hz: float) -> float:
     Analysis by Higher Order Crossings*, IEEE Press (zero-crossing rate of a
     sampled Gaussian process).
     """
-    if isinstance(rate_hz, bool) or not isinstance(rate_hz, numbers.Real) or not (
-        math.isfinite(rate_hz) and rate_hz > 0
-    ):
-        raise InputError(f"rate {rate_hz!r} Hz must be a finite number > 0", location="rate_hz")
-    rho = lag_one_correlation(profile, rate_hz)
-    return float(rate_hz) * math.acos(rho) / (2 * math.pi)
+    rate = check_rate_hz(rate_hz)
+    return _sheppard_upcrossing_rate_hz(lag_one_correlation(profile, rate), rate)
+
+
+def _sheppard_upcrossing_rate_hz(rho1: float, rate_hz: float) -> float:
+    """Mean-level up-crossings per second of a sampled Gaussian sequence with lag-one correlation ``rho1``."""
+    return float(rate_hz) * math.acos(rho1) / (2 * math.pi)
 
 
 def lag_one_correlation(profile: AsdProfile, rate_hz: float) -> float:
