@@ -23,7 +23,7 @@ def fail(message: str) -> "NoReturn":  # noqa: F821
 
 def load_profile(spec: str, grms: float | None = None, level_db: float | None = None):
     """Read a profile (file or preset name) and apply an optional rescale."""
-    from synth.profile_io import read_profile
+    from vibsynth.profile.files import read_profile
 
     profile = read_profile(spec)
     if grms is not None and level_db is not None:

@@ -7,8 +7,10 @@ import signal
 
 import click
 
-from cli.common import DRIVE_CAUTION, Progress, is_interactive_stderr, load_profile, warn
-from synth import drive_job, drivefile, synthesis
+from vibsynth.cli.common import DRIVE_CAUTION, Progress, is_interactive_stderr, load_profile, warn
+from vibsynth import jobs as drive_job
+from vibsynth.generate import pipeline as synthesis
+from vibsynth.io import drivefile
 
 #: Records longer than this many samples show a progress bar (on a terminal).
 PROGRESS_MIN_SAMPLES = 1 << 21

@@ -6,7 +6,7 @@ import json
 
 import click
 
-from cli.common import load_profile
+from vibsynth.cli.common import load_profile
 
 METRE_PER_INCH = 0.0254  # exact (international inch, 1959)
 
@@ -79,7 +79,7 @@ def info(profile, as_json, grms, level_db, inch, write_path):
     the 3-sigma peak-to-peak displacement a shaker needs, and Rice's zero
     up-crossing and peak rates.
     """
-    from synth.profile_io import write_profile
+    from vibsynth.profile.files import write_profile
 
     loaded = load_profile(profile, grms=grms, level_db=level_db)
     if write_path:
@@ -96,7 +96,7 @@ def info(profile, as_json, grms, level_db, inch, write_path):
 @click.option("--json", "as_json", is_flag=True, help="Print the list as JSON.")
 def presets(as_json):
     """List the bundled demo profiles (invented scenarios) with band and g RMS."""
-    from synth.profile_io import preset_names, read_preset
+    from vibsynth.profile.files import preset_names, read_preset
 
     rows = []
     for name in preset_names():

@@ -12,8 +12,8 @@ import sys
 
 import click
 
-from synth import __version__
-from synth.errors import InputError
+from vibsynth import __version__
+from vibsynth.errors import InputError
 
 
 class _Group(click.Group):
@@ -59,7 +59,7 @@ def _finite(param_type: click.ParamType) -> click.ParamType:
 
 def _register() -> None:
     """Add the commands in the order a user meets them (the main job first)."""
-    from cli import generate_cmd, info_cmd, peaks_cmd, run_cmd, verify_cmd
+    from vibsynth.cli import generate_cmd, info_cmd, peaks_cmd, run_cmd, verify_cmd
 
     for command in (run_cmd.run, info_cmd.info, generate_cmd.generate, verify_cmd.verify, peaks_cmd.peaks,
                     info_cmd.presets):

@@ -7,9 +7,9 @@ from pathlib import Path
 
 import click
 
-from cli.common import DRIVE_CAUTION, json_safe, load_profile, warn
-from cli.generate_cmd import clip_option, format_written, kurtosis_option, skewness_option, write_with_progress
-from cli.verify_cmd import (
+from vibsynth.cli.common import DRIVE_CAUTION, json_safe, load_profile, warn
+from vibsynth.cli.generate_cmd import clip_option, format_written, kurtosis_option, skewness_option, write_with_progress
+from vibsynth.cli.verify_cmd import (
     _dof_option,
     _grms_tolerance_option,
     _min_fraction_option,
@@ -20,7 +20,7 @@ from cli.verify_cmd import (
     run_verification,
     write_json_atomic,
 )
-from synth import drive_job
+from vibsynth import jobs as drive_job
 
 #: The preset used when no profile is named.
 DEFAULT_PRESET = "parcel-conveyor"
@@ -90,9 +90,9 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
     with alarm and abort limits, within the shaker's stroke, velocity and force
     limits, following your lab's procedures, local codes and licensed practice.
     """
-    from synth.drivefile import open_drive
-    from synth.figures import write_report_figures
-    from synth.profile_io import write_profile
+    from vibsynth.io.drivefile import open_drive
+    from vibsynth.analysis.figures import write_report_figures
+    from vibsynth.profile.files import write_profile
 
     spec = profile or DEFAULT_PRESET
     target = load_profile(spec, grms, level_db)
@@ -117,7 +117,7 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
         clip=clip,
     )
     # Check the verification options before any work is done.
-    from cli.verify_cmd import parse_tolerance
+    from vibsynth.cli.verify_cmd import parse_tolerance
 
     parse_tolerance(tolerance)
     folder_created = not folder.exists()

@@ -9,8 +9,8 @@ from pathlib import Path
 
 import click
 
-from cli.common import json_safe, load_profile, warn
-from synth.errors import InputError
+from vibsynth.cli.common import json_safe, load_profile, warn
+from vibsynth.errors import InputError
 
 #: Samples per chunk read from a drive file.
 READ_CHUNK_SAMPLES = 1 << 18
@@ -37,7 +37,7 @@ def parse_tolerance(text: str) -> tuple[float, float]:
 
 def profile_from_sidecar(drive) -> "AsdProfile":  # noqa: F821
     """The target recorded in a drive's sidecar (breakpoints in g^2/Hz)."""
-    from synth.profile import AsdProfile
+    from vibsynth.profile.asd import AsdProfile
 
     side = f"{drive.path}.json"
     if not drive.sidecar or "profile" not in drive.sidecar:
@@ -55,7 +55,7 @@ def profile_from_sidecar(drive) -> "AsdProfile":  # noqa: F821
 
 def criteria_for(drive, tolerance, grms_tolerance, min_fraction):
     """Verification criteria: the options, plus amplitude targets the sidecar asked for."""
-    from synth.verify import Criteria
+    from vibsynth.analysis.verify import Criteria
 
     low, high = parse_tolerance(tolerance)
     options = (drive.sidecar or {}).get("options", {}) if drive.sidecar else {}
@@ -99,7 +99,7 @@ def format_compensation(block: dict) -> str:
 
 def run_verification(drive, target, criteria, resolution=None, dof=None):
     """Verify an open drive file against a target (streamed, two passes); errors name the file."""
-    from synth.verify import verify_record
+    from vibsynth.analysis.verify import verify_record
 
     start, stop = drive.steady_range
     try:
@@ -247,7 +247,7 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     in the sidecar are left out. Kurtosis, skewness or clip targets recorded in
     the sidecar are judged too.
     """
-    from synth.drivefile import open_drive
+    from vibsynth.io.drivefile import open_drive
 
     drive = open_drive(file, rate_hz=rate, scale=scale)
     if level_db is not None and not profile_spec:
@@ -265,7 +265,7 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     if report_dir:
         folder = Path(report_dir)
         folder.mkdir(parents=True, exist_ok=True)
-        from synth.figures import write_report_figures
+        from vibsynth.analysis.figures import write_report_figures
 
         paths = write_report_figures(result, folder, title=Path(file).name)
         write_json_atomic(folder / "verify.json", data)

@@ -1,4 +1,4 @@
-"""The one exception family for bad user input.
+"""The exception family for bad user input, and the warning category of the library.
 
 Every problem a user can fix (a malformed profile, an option out of range, a
 drive file that disagrees with its sidecar) raises :class:`InputError`.  The
@@ -44,4 +44,15 @@ class OutOfRangeError(InputError):
     """A requested target (kurtosis, skewness, clip level, ...) that the method cannot reach.
 
     The message states the reachable range.
+    """
+
+
+class VibsynthWarning(UserWarning):
+    """Something the user should know about a result that is still usable.
+
+    Raised with ``warnings.warn(message, VibsynthWarning, stacklevel=2)`` by the
+    library (a sample rate under the usual 2.56 x margin, a target that the
+    transform cannot fully reach, ...); the command line prints each as one line
+    ``vibsynth: warning: ...``.  Python callers can filter or escalate them
+    (``-W error::vibsynth.VibsynthWarning``).
     """

@@ -10,7 +10,7 @@ this module predicts
 * the crest factor (largest ``|x|`` over the RMS),
 
 from theory and from a Monte-Carlo of N records made by the drive synthesis
-pipeline itself (:class:`synth.synthesis.Synthesizer`), side by side.
+pipeline itself (:class:`vibsynth.generate.pipeline.Synthesizer`), side by side.
 
 Theory
 ------
@@ -71,8 +71,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special
 
-from synth.errors import InputError
-from synth.extremes import (
+from vibsynth.errors import InputError
+from vibsynth.analysis.extremes import (
     LargestPeak,
     _continuous_rate,
     largest_peak_from_crossing_rate,
@@ -80,9 +80,9 @@ from synth.extremes import (
     davenport_expected_largest_peak_sigma,
     davenport_largest_peak_std_sigma,
 )
-from synth.nongaussian import gaussian_level, nongaussian_plan, transform_record
-from synth.profile import AsdProfile
-from synth.synthesis import (
+from vibsynth.generate.nongaussian import gaussian_level, nongaussian_plan, transform_record
+from vibsynth.profile.asd import AsdProfile
+from vibsynth.generate.pipeline import (
     Synthesizer,
     plan_synthesis,
     root_seed_sequence,
@@ -391,15 +391,15 @@ def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, des
     """Synthesize N records of a plan and count their peaks and exceedances.
 
     Record ``i`` is made from the seed sequence ``SeedSequence(seed, spawn_key=(i,))``
-    by :class:`synth.synthesis.Synthesizer` (Gaussian) or
-    :class:`synth.nongaussian.NonGaussianSynthesizer` (with ``design``),
+    by :class:`vibsynth.generate.pipeline.Synthesizer` (Gaussian) or
+    :class:`vibsynth.generate.nongaussian.NonGaussianSynthesizer` (with ``design``),
     exactly as a drive file is.
 
     Parameters
     ----------
     plan : SynthesisPlan
         The drive's plan (Gaussian, or non-Gaussian from
-        :func:`synth.nongaussian.nongaussian_plan`).
+        :func:`vibsynth.generate.nongaussian.nongaussian_plan`).
     records : int
         N, >= 1.
     seed : int
@@ -609,7 +609,7 @@ def peak_report(profile: AsdProfile, duration_s: float, rate_hz: float | None = 
     rate_hz : float, optional
         Sample rate, Hz (default :func:`default_rate_hz`).
     transform : HermiteTransform, ClipTransform or None
-        Non-Gaussian transform (from :func:`synth.nongaussian.plan_transform`);
+        Non-Gaussian transform (from :func:`vibsynth.generate.nongaussian.plan_transform`);
         None gives the Gaussian row only.
     records : int
         Monte-Carlo records per row (0: theory only).

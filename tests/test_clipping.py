@@ -8,7 +8,7 @@ import pytest
 from numpy.polynomial import hermite_e
 from scipy import integrate, special, stats
 
-from synth.clipping import (
+from vibsynth.transforms.clipping import (
     MAX_CREST_FACTOR,
     ClipTransform,
     clip_hermite_coefficients,
@@ -16,7 +16,7 @@ from synth.clipping import (
     clipped_gaussian_variance,
     solve_clip_level,
 )
-from synth.errors import InputError, OutOfRangeError
+from vibsynth.errors import InputError, OutOfRangeError
 
 LEVELS = [0.3, 1.0, 1.8, 3.0, 4.5]
 

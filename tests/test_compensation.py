@@ -10,16 +10,16 @@ import pytest
 from numpy.polynomial import hermite_e
 from scipy import integrate, signal, special, stats
 
-from synth.clipping import clipped_gaussian_variance, solve_clip_level
-from synth.compensation import (
+from vibsynth.transforms.clipping import clipped_gaussian_variance, solve_clip_level
+from vibsynth.transforms.compensation import (
     compensate_spectrum,
     gaussian_correlation,
     hermite_correlation_weights,
     output_correlation,
     predict_output_asd,
 )
-from synth.errors import InputError
-from synth.hermite import HermiteTransform, solve_cubic_hermite
+from vibsynth.errors import InputError
+from vibsynth.transforms.hermite import HermiteTransform, solve_cubic_hermite
 
 # Invented profile: flat 0.04 g^2/Hz from 20 to 2000 Hz with +6 dB/oct below (from 10 Hz)
 # and -6 dB/oct above (to 4000 Hz); zero elsewhere.

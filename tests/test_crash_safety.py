@@ -14,7 +14,7 @@ never a mixture), so after any kill:
   ISO 32000-1 7.5.5; JSON parses, RFC 8259);
 - anything else left is a hidden temporary ('.' + name + '.partial...'): a SIGKILL cannot be
   caught, so these leftovers are unavoidable.  The next write to the same destination
-  removes the stale drive partials (synth.drivefile.remove_stale_partials), checked here on
+  removes the stale drive partials (vibsynth.io.drivefile.remove_stale_partials), checked here on
   the real leftovers of a kill.
 
 Kill moments come from a seeded generator: one at a random time after the start (imports,
@@ -36,12 +36,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-import cli
-from cli.main import main
-from synth.drivefile import estimate_file_bytes, open_drive, sidecar_path
+from vibsynth.cli.main import main
+from vibsynth.io.drivefile import estimate_file_bytes, open_drive, sidecar_path
 
 PROFILE_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n80,0.04\n350,0.04\n2000,0.005\n"  # invented bracket test
-PACKAGE_ROOT = Path(cli.__file__).resolve().parents[1]
 RATE = 51200
 DURATION_S = 60  # 3.07e6 samples: a few seconds of work, overlap-add with the small memory budget below
 REPORT_FILES = ("asd.png", "amplitude.png", "excerpt.png", "rms.png", "report.pdf", "verify.json")
@@ -57,8 +55,7 @@ def _quiet_main(argv) -> tuple[int, str, str]:
 
 
 def _start(argv) -> subprocess.Popen:
-    env = dict(os.environ, PYTHONPATH=str(PACKAGE_ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
-    return subprocess.Popen([sys.executable, "-m", "cli.main", *map(str, argv)], env=env,
+    return subprocess.Popen([sys.executable, "-m", "vibsynth", *map(str, argv)],
                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
 
 

@@ -4,12 +4,12 @@ The design contract (shared/DESIGN.md): "Same seed and options: identical sample
 "the output must not depend on the chunk size used to write it".  Each case writes the same
 drive three ways and compares the files byte for byte (and the sidecars as JSON):
 
-- in this process with the default chunk size of synth.drive_job;
+- in this process with the default chunk size of vibsynth.jobs;
 - in this process with a prime chunk size (7919 samples), which splits every overlap-add
   frame and every write differently (the chunk lengths seen by the writer are recorded to
   prove it);
 - in a fresh interpreter (one for all cases, calling the console script's entry point
-  ``cli.main.main``) with another hash seed and single-threaded numerical libraries.
+  ``vibsynth.cli.main.main``) with another hash seed and single-threaded numerical libraries.
 
 Non-Gaussian cases run only when ``vibsynth generate --help`` lists the option
 (--kurtosis, --skewness, --clip); until then they are skipped with that reason.
@@ -29,15 +29,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-import cli
-from cli.main import main
-from synth import drive_job, drivefile
-from synth.drivefile import sidecar_path
+from vibsynth.cli.main import main
+from vibsynth import jobs as drive_job
+from vibsynth.io import drivefile
+from vibsynth.io.drivefile import sidecar_path
 
 PROFILE_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n80,0.04\n350,0.04\n2000,0.005\n"  # invented bracket test
 RATE = 5120
 ODD_CHUNK = 7919  # prime: no frame length, hop or default chunk is a multiple of it
-PACKAGE_ROOT = Path(cli.__file__).resolve().parents[1]  # where this process imports cli/ and synth/ from
 
 
 def _quiet_main(argv) -> tuple[int, str, str]:
@@ -114,7 +113,7 @@ def _in_process(argv, monkeypatch, chunk: int | None) -> list[int]:
 
 _FRESH_RUNNER = """
 import json, sys
-from cli.main import main
+from vibsynth.cli.main import main
 for argv in json.loads(sys.argv[1]):
     status = main(argv)
     if status != 0:
@@ -135,8 +134,7 @@ def fresh_outputs(tmp_path_factory, profile_path):
             outputs[case_id] = folder / f"{case_id}-{name}"
             runs.append([str(a) for a in _argv(profile_path, outputs[case_id], options)])
     env = dict(os.environ)
-    env.update(PYTHONHASHSEED="12345", OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1",
-               PYTHONPATH=str(PACKAGE_ROOT) + os.pathsep + env.get("PYTHONPATH", ""))
+    env.update(PYTHONHASHSEED="12345", OMP_NUM_THREADS="1", OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
     result = subprocess.run([sys.executable, "-c", _FRESH_RUNNER, json.dumps(runs)], cwd=folder, env=env,
                             capture_output=True, text=True, timeout=600)
     assert result.returncode == 0, result.stderr

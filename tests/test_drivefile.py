@@ -1,4 +1,4 @@
-"""Drive files (synth.drivefile): round trips, exact scale, refusal to clip, atomic writes, sidecar checks.
+"""Drive files (vibsynth.io.drivefile): round trips, exact scale, refusal to clip, atomic writes, sidecar checks.
 
 References used below:
 - PCM quantisation: a value rounded to the nearest of 2^(bits-1) steps per full
@@ -19,8 +19,8 @@ import numpy as np
 import pytest
 import soundfile
 
-from synth.drivefile import DriveWriter, full_scale_from_peak, open_drive, sidecar_path, write_drive
-from synth.errors import InputError
+from vibsynth.io.drivefile import DriveWriter, full_scale_from_peak, open_drive, sidecar_path, write_drive
+from vibsynth.errors import InputError
 
 RATE_HZ = 8000
 

@@ -9,8 +9,8 @@ import pytest
 import scipy.stats
 from scipy import integrate
 
-from synth.errors import InputError
-from synth.extremes import (
+from vibsynth.errors import InputError
+from vibsynth.analysis.extremes import (
     cartwright_longuet_higgins_peak_cdf,
     cartwright_longuet_higgins_peak_pdf,
     davenport_expected_largest_peak_sigma,

@@ -1,4 +1,4 @@
-"""Checks of the report figures (synth.figures.write_report_figures).
+"""Checks of the report figures (vibsynth.analysis.figures.write_report_figures).
 
 Files are checked against their published formats: the PNG signature and
 IHDR chunk (PNG specification, ISO/IEC 15948 / W3C PNG 2nd ed., sections 5.2
@@ -20,10 +20,10 @@ import pytest
 from matplotlib import colors
 from matplotlib.image import imread
 
-import synth.figures as figures
-from synth.errors import InputError
-from synth.profile import AsdProfile
-from synth.verify import verify_record
+import vibsynth.analysis.figures as figures
+from vibsynth.errors import InputError
+from vibsynth.profile.asd import AsdProfile
+from vibsynth.analysis.verify import verify_record
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification, 5.2
 RATE_HZ = 8192.0

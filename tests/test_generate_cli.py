@@ -24,10 +24,10 @@ import pytest
 import scipy.signal
 import soundfile
 
-from cli.common import DRIVE_CAUTION
-from cli.main import main
-from synth.drivefile import open_drive, sidecar_path
-from synth.profile_io import read_profile
+from vibsynth.cli.common import DRIVE_CAUTION
+from vibsynth.cli.main import main
+from vibsynth.io.drivefile import open_drive, sidecar_path
+from vibsynth.profile.files import read_profile
 
 PROFILE_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n80,0.04\n350,0.04\n2000,0.005\n"  # invented bracket test
 REPO = Path(__file__).resolve().parents[1]
@@ -191,7 +191,7 @@ def _measured_child(script: str, *args):
 
 _MEASURE = """
     import resource, sys
-    from cli.main import main
+    from vibsynth.cli.main import main
     status = main(sys.argv[1:])
     print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)  # KiB on Linux
     sys.exit(status)
@@ -233,7 +233,7 @@ def test_killed_run_leaves_destination_as_it_was(tmp_path, profile_path, existin
     if existing:
         destination.write_text("old drive\n")
         sidecar_path(destination).write_text("{}\n")
-    child = _child("import sys; from cli.main import main; sys.exit(main(sys.argv[1:]))", "generate", profile_path,
+    child = _child("import sys; from vibsynth.cli.main import main; sys.exit(main(sys.argv[1:]))", "generate", profile_path,
                    "-o", destination, "--duration", 3000, "--rate", 5120, "--seed", 1, "--quiet")
     _wait_for_partial(tmp_path, child)
     child.send_signal(signal.SIGKILL)
@@ -247,7 +247,7 @@ def test_killed_run_leaves_destination_as_it_was(tmp_path, profile_path, existin
 
 def test_terminated_run_removes_its_temporary_files(tmp_path, profile_path):
     destination = tmp_path / "drive.csv"
-    child = _child("import sys; from cli.main import main; sys.exit(main(sys.argv[1:]))", "generate", profile_path,
+    child = _child("import sys; from vibsynth.cli.main import main; sys.exit(main(sys.argv[1:]))", "generate", profile_path,
                    "-o", destination, "--duration", 3000, "--rate", 5120, "--seed", 1, "--quiet")
     _wait_for_partial(tmp_path, child)
     child.send_signal(signal.SIGTERM)
@@ -257,7 +257,7 @@ def test_terminated_run_removes_its_temporary_files(tmp_path, profile_path):
 
 
 def test_progress_bar_only_on_a_terminal(tmp_path, profile_path, capsys, monkeypatch):
-    import cli.generate_cmd as generate_cmd
+    import vibsynth.cli.generate_cmd as generate_cmd
 
     args = [profile_path, "-o", tmp_path / "p.npy", "--duration", 420, "--rate", 5120, "--seed", 1,
             "--memory-budget", 8]  # 2.15e6 samples: long enough for a bar

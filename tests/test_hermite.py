@@ -9,8 +9,8 @@ from hypothesis import strategies as st
 from numpy.polynomial import hermite_e
 from scipy import integrate, special, stats
 
-from synth.errors import InputError, OutOfRangeError
-from synth.hermite import (
+from vibsynth.errors import InputError, OutOfRangeError
+from vibsynth.transforms.hermite import (
     HermiteTransform,
     cubic_hermite_moments,
     cubic_hermite_skewness_kurtosis,

@@ -6,8 +6,8 @@ import sys
 
 import pytest
 
-from cli.main import main
-from synth.profile_io import preset_names, read_profile
+from vibsynth.cli.main import main
+from vibsynth.profile.files import preset_names, read_profile
 
 
 def run(argv, capsys):
@@ -157,7 +157,7 @@ def test_option_errors_are_one_line(capsys):
 def test_console_script_has_no_traceback_on_bad_input(tmp_path):
     bad = tmp_path / "bad.csv"
     bad.write_text("20,x\n")
-    result = subprocess.run([sys.executable, "-m", "cli.main", "info", str(bad)], capture_output=True, text=True)
+    result = subprocess.run([sys.executable, "-m", "vibsynth", "info", str(bad)], capture_output=True, text=True)
     assert result.returncode == 2
     assert result.stderr.count("\n") == 1 and "Traceback" not in result.stderr
 

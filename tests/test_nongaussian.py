@@ -22,8 +22,8 @@ import pytest
 import scipy.signal
 import scipy.stats
 
-from synth.errors import InputError, OutOfRangeError
-from synth.nongaussian import (
+from vibsynth.errors import InputError, OutOfRangeError
+from vibsynth.generate.nongaussian import (
     NonGaussianSynthesizer,
     SpillHighpass,
     StreamTransform,
@@ -31,8 +31,8 @@ from synth.nongaussian import (
     nongaussian_plan,
     plan_transform,
 )
-from synth.profile import STANDARD_GRAVITY_M_S2, AsdProfile
-from synth.synthesis import Synthesizer, plan_synthesis
+from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
+from vibsynth.generate.pipeline import Synthesizer, plan_synthesis
 
 RATE_HZ = 4096.0
 SAMPLES = 1 << 21  # 512 s at 4096 Hz
@@ -111,7 +111,7 @@ def test_clipped_records_hold_the_crest_factor_and_the_asd(crest, budget):
         db = _welch_db(x, GENTLE)
         assert np.mean(np.abs(db) <= 1.5) >= 0.95 and np.max(np.abs(db)) < 1.0
         assert rms == pytest.approx(GENTLE.grms, rel=0.02)
-        # clipping a Gaussian lowers the kurtosis below 3 (closed form in synth.clipping, e.g. 2.92 at c = 3)
+        # clipping a Gaussian lowers the kurtosis below 3 (closed form in vibsynth.transforms.clipping, e.g. 2.92 at c = 3)
         assert scipy.stats.kurtosis(x, fisher=False) == pytest.approx(design.transform.moments()[3], rel=0.02)
 
 

@@ -18,9 +18,9 @@ import pytest
 import scipy.signal
 import scipy.stats
 
-from cli.main import main
-from synth.drivefile import open_drive, sidecar_path
-from synth.profile_io import read_profile
+from vibsynth.cli.main import main
+from vibsynth.io.drivefile import open_drive, sidecar_path
+from vibsynth.profile.files import read_profile
 
 GENTLE_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n40,0.04\n600,0.04\n1000,0.01\n"  # invented
 STEEP_CSV = "frequency_hz,asd_g2_per_hz\n20,0.001\n40,0.04\n600,0.04\n1000,0.001\n"  # invented, 16 dB skirts

@@ -1,4 +1,4 @@
-"""`vibsynth peaks` and synth.peaks: largest peak, exceedances, crest factor; theory against Monte-Carlo.
+"""`vibsynth peaks` and vibsynth.peaks: largest peak, exceedances, crest factor; theory against Monte-Carlo.
 
 External references used below:
 - Davenport (1964), Proc. ICE 28: expected largest peak sqrt(2 ln N) + 0.5772 / sqrt(2 ln N) and its
@@ -8,7 +8,7 @@ External references used below:
   orthant probability P(X < v < Y) at a non-zero level;
 - scipy.stats.norm for Gaussian tail probabilities; iid sampling of the transform for its tails;
 - the Monte-Carlo of the synthesis pipeline itself, against the stated tolerance
-  (synth.peaks.PEAK_TOLERANCE_RELATIVE, EXCEEDANCE_TOLERANCE_RELATIVE).
+  (vibsynth.peaks.PEAK_TOLERANCE_RELATIVE, EXCEEDANCE_TOLERANCE_RELATIVE).
 
 The profile is an invented 20-1000 Hz breakpoint table.
 """
@@ -22,10 +22,10 @@ import numpy as np
 import pytest
 import scipy.stats
 
-from cli.main import main
-from synth import peaks
-from synth.nongaussian import plan_transform
-from synth.profile import AsdProfile
+from vibsynth.cli.main import main
+from vibsynth import peaks
+from vibsynth.generate.nongaussian import plan_transform
+from vibsynth.profile.asd import AsdProfile
 
 GENTLE = AsdProfile([20, 40, 600, 1000], [0.01, 0.04, 0.04, 0.01], name="invented gentle")
 GENTLE_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n40,0.04\n600,0.04\n1000,0.01\n"
@@ -152,9 +152,9 @@ def test_peaks_cli_theory_only_refusals_and_runtime_warning(tmp_path, capsys, mo
     assert main(["peaks", str(profile), "--duration", "60", "--kurtosis", "50"]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "3 to 46.2" in err[0]
-    import cli.peaks_cmd
+    import vibsynth.cli.peaks_cmd
 
-    monkeypatch.setattr(cli.peaks_cmd, "MC_WARN_SAMPLES", 1000)
+    monkeypatch.setattr(vibsynth.cli.peaks_cmd, "MC_WARN_SAMPLES", 1000)
     assert main(["peaks", str(profile), "--duration", "5", "--records", "1"]) == 0
     err = capsys.readouterr().err
     assert "vibsynth: warning: the Monte-Carlo synthesizes" in err and "--records" in err

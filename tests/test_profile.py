@@ -8,8 +8,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import integrate
 
-from synth.errors import InputError
-from synth.profile import DB_PER_OCTAVE_DOUBLING, STANDARD_GRAVITY_M_S2, AsdProfile
+from vibsynth.errors import InputError
+from vibsynth.profile.asd import DB_PER_OCTAVE_DOUBLING, STANDARD_GRAVITY_M_S2, AsdProfile
 
 
 @st.composite

@@ -10,8 +10,8 @@ import math
 import numpy as np
 import pytest
 
-from synth.profile import AsdProfile
-from synth.profile_io import parse_toml_profile
+from vibsynth.profile.asd import AsdProfile
+from vibsynth.profile.files import parse_toml_profile
 
 
 def test_navmat_p9492_screening_profile_is_6_06_grms():

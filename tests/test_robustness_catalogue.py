@@ -1,6 +1,6 @@
 """A catalogue of bad inputs across options and drive files: exit 2, one line, no traceback, nothing left behind.
 
-Every case runs the command line in-process through ``cli.main.main`` and checks:
+Every case runs the command line in-process through ``vibsynth.cli.main.main`` and checks:
 
 - exit status 2;
 - exactly one line on stderr, starting with ``vibsynth``, with no ``Traceback``;
@@ -37,11 +37,11 @@ import numpy as np
 import pytest
 import soundfile
 
-import cli
-import synth
-from cli.main import main
-from synth import drivefile
-from synth.drivefile import estimate_file_bytes, sidecar_path
+import vibsynth.cli
+import vibsynth
+from vibsynth.cli.main import main
+from vibsynth.io import drivefile
+from vibsynth.io.drivefile import estimate_file_bytes, sidecar_path
 
 # Invented bracket test profile: 3-sigma stroke about 1.2 mm, 3-sigma velocity about 0.16 m/s.
 PROFILE_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n80,0.04\n350,0.04\n2000,0.005\n"
@@ -506,7 +506,7 @@ _DANGEROUS = [
 
 def test_no_pickle_and_no_eval_in_the_tool():
     """No module of the installed packages unpickles or evaluates; every np.load refuses pickles."""
-    sources = [p for package in (synth, cli) for p in Path(package.__file__).parent.rglob("*.py")]
+    sources = [p for package in (vibsynth, vibsynth.cli) for p in Path(package.__file__).parent.rglob("*.py")]
     assert len(sources) >= 10
     for source in sources:
         text = source.read_text(encoding="utf-8")

@@ -1,7 +1,7 @@
 """Fuzzing (hypothesis) of the profile readers, the drive sidecar reader and the option parsing.
 
 The law checked for every input: the tool either accepts it, or refuses it with its own
-input error (synth.errors.InputError in the library; exit status 2 and one stderr line on
+input error (vibsynth.errors.InputError in the library; exit status 2 and one stderr line on
 the command line).  No other exception escapes, no traceback is printed, and a refused run
 leaves no file behind.  A profile that is accepted is usable: every overall figure is a
 finite number and it survives a write/read round trip unchanged (TOML 1.0 and RFC 4180
@@ -33,11 +33,11 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from cli.main import main
-from synth.drivefile import open_drive, sidecar_path
-from synth.errors import InputError
-from synth.profile import AsdProfile
-from synth.profile_io import format_csv_profile, format_toml_profile, parse_csv_profile, parse_toml_profile, read_profile
+from vibsynth.cli.main import main
+from vibsynth.io.drivefile import open_drive, sidecar_path
+from vibsynth.errors import InputError
+from vibsynth.profile.asd import AsdProfile
+from vibsynth.profile.files import format_csv_profile, format_toml_profile, parse_csv_profile, parse_toml_profile, read_profile
 
 PROFILE_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n80,0.04\n350,0.04\n2000,0.005\n"  # invented bracket test
 RATE = 5120
@@ -414,7 +414,7 @@ def test_huge_values_are_refused_in_one_line(tmp_path, profile_file, extra):
 
 
 def test_huge_memory_budget_is_cut_to_the_machine(tmp_path, profile_file):
-    # A budget far above the machine's memory is cut to half of it (synth.drive_job.usable_memory_bytes)
+    # A budget far above the machine's memory is cut to half of it (vibsynth.jobs.usable_memory_bytes)
     # instead of planning, and allocating, a record the machine cannot hold.
     argv = ["generate", profile_file, "-o", tmp_path / "d.npy", "--duration", 1, "--rate", RATE,
             "--memory-budget", "1e308"]

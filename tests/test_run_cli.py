@@ -6,9 +6,9 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from cli.main import main
-from synth.drivefile import open_drive
-from synth.profile_io import read_profile
+from vibsynth.cli.main import main
+from vibsynth.io.drivefile import open_drive
+from vibsynth.profile.files import read_profile
 
 EXPECTED_FILES = {
     "drive.flac", "drive.flac.json", "profile.toml", "report.json", "report.pdf",

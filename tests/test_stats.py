@@ -10,8 +10,8 @@ import scipy.stats
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from synth.errors import InputError
-from synth.stats import (
+from vibsynth.errors import InputError
+from vibsynth.analysis.stats import (
     LevelCrossingAccumulator,
     MomentAccumulator,
     amplitude_statistics,

@@ -1,4 +1,4 @@
-"""Gaussian drive synthesis (synth.synthesis) against outside references.
+"""Gaussian drive synthesis (vibsynth.generate.pipeline) against outside references.
 
 References used below:
 - DFT Parseval relation, sum x_n^2 = (1/N) sum |X_k|^2 (any DSP text, e.g.
@@ -26,9 +26,9 @@ import scipy.stats
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from synth.errors import InputError
-from synth.profile import STANDARD_GRAVITY_M_S2, AsdProfile
-from synth.synthesis import (
+from vibsynth.errors import InputError
+from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
+from vibsynth.generate.pipeline import (
     Synthesizer,
     generate_samples,
     iter_chunks,

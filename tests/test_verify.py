@@ -1,4 +1,4 @@
-"""Checks of the verifier (synth.verify) against closed-form theory and reference libraries.
+"""Checks of the verifier (vibsynth.analysis.verify) against closed-form theory and reference libraries.
 
 The records are built here, independently of the project's generator, with
 numpy's inverse real FFT: |X_k| = N sqrt(S(f_k) df / 2) with uniform random
@@ -20,10 +20,10 @@ import scipy.signal
 import scipy.stats
 from scipy import integrate
 
-from synth.errors import InputError
-from synth.profile import AsdProfile
-from synth.verify import Criteria, compare_asd, sampled_upcrossing_rate_hz, verify_record
-from synth.welch import DEFAULT_TARGET_DOF, welch_asd
+from vibsynth.errors import InputError
+from vibsynth.profile.asd import AsdProfile
+from vibsynth.analysis.verify import Criteria, compare_asd, sampled_upcrossing_rate_hz, verify_record
+from vibsynth.analysis.welch import DEFAULT_TARGET_DOF, welch_asd
 
 EULER_GAMMA = 0.5772156649015329  # Euler's constant (Abramowitz & Stegun 6.1.3)
 

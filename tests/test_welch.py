@@ -11,8 +11,8 @@ import scipy.stats
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from synth.errors import InputError
-from synth.welch import (
+from vibsynth.errors import InputError
+from vibsynth.analysis.welch import (
     DEFAULT_TARGET_DOF,
     WelchAccumulator,
     chi2_confidence_limits,

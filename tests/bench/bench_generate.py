@@ -33,8 +33,8 @@ import scipy.fft
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
-from synth.profile import AsdProfile  # noqa: E402
-from synth.synthesis import Synthesizer, generate_samples, plan_synthesis  # noqa: E402
+from vibsynth.profile.asd import AsdProfile  # noqa: E402
+from vibsynth.generate.pipeline import Synthesizer, generate_samples, plan_synthesis  # noqa: E402
 
 RATE_HZ = 51200.0
 PROFILE = AsdProfile([20, 80, 350, 2000], [0.01, 0.04, 0.04, 0.005], name="invented-bench")
@@ -47,7 +47,7 @@ def hour_child(folder: Path) -> tuple[float, float]:
     script = textwrap.dedent(
         """
         import resource, sys
-        from cli.main import main
+        from vibsynth.cli.main import main
         status = main(sys.argv[1:])
         print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
         sys.exit(status)

@@ -33,10 +33,10 @@ import scipy.stats
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
-from synth import compensation  # noqa: E402
-from synth.nongaussian import nongaussian_plan, plan_transform  # noqa: E402
-from synth.profile import AsdProfile  # noqa: E402
-from synth.synthesis import Synthesizer, plan_synthesis  # noqa: E402
+from vibsynth.transforms import compensation  # noqa: E402
+from vibsynth.generate.nongaussian import nongaussian_plan, plan_transform  # noqa: E402
+from vibsynth.profile.asd import AsdProfile  # noqa: E402
+from vibsynth.generate.pipeline import Synthesizer, plan_synthesis  # noqa: E402
 
 RATE_HZ = 4096.0
 PROFILE = AsdProfile([20, 40, 600, 1000], [0.01, 0.04, 0.04, 0.01], name="invented-bench")

@@ -46,13 +46,13 @@ from scipy import signal
 REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
-from synth.drive_job import default_workers  # noqa: E402
-from synth.drivefile import write_drive  # noqa: E402
-from synth.nongaussian import nongaussian_plan, plan_transform  # noqa: E402
-from synth.profile import AsdProfile  # noqa: E402
-from synth.synthesis import Synthesizer, generate_samples, plan_synthesis  # noqa: E402
-from synth.verify import verify_record  # noqa: E402
-from synth.welch import welch_asd  # noqa: E402
+from vibsynth.jobs import default_workers  # noqa: E402
+from vibsynth.io.drivefile import write_drive  # noqa: E402
+from vibsynth.generate.nongaussian import nongaussian_plan, plan_transform  # noqa: E402
+from vibsynth.profile.asd import AsdProfile  # noqa: E402
+from vibsynth.generate.pipeline import Synthesizer, generate_samples, plan_synthesis  # noqa: E402
+from vibsynth.analysis.verify import verify_record  # noqa: E402
+from vibsynth.analysis.welch import welch_asd  # noqa: E402
 
 RATE_HZ = 51200.0
 PROFILE = AsdProfile([20, 80, 350, 2000], [0.01, 0.04, 0.04, 0.005], name="invented-bench")
@@ -61,7 +61,7 @@ PROFILE_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n80,0.04\n350,0.04\n2000,0.00
 _CHILD = textwrap.dedent(
     """
     import resource, sys
-    from cli.main import main
+    from vibsynth.cli.main import main
     status = main(sys.argv[1:])
     print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)
     sys.exit(status)

@@ -67,8 +67,8 @@ from typing import Iterator
 import numpy as np
 import soundfile
 
-from synth import __version__
-from synth.errors import InputError
+from vibsynth import __version__
+from vibsynth.errors import InputError
 
 #: File formats by suffix.
 FORMATS = ("wav", "flac", "csv", "npy")

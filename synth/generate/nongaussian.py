@@ -8,16 +8,16 @@ transform ``g`` with unit-variance output, then scaled by the target g RMS
 
 ``hermite``
     Winterstein's cubic Hermite model solved exactly for a target skewness and
-    kurtosis (:func:`synth.hermite.solve_cubic_hermite`): the softening form
+    kurtosis (:func:`vibsynth.transforms.hermite.solve_cubic_hermite`): the softening form
     for kurtosis >= 3, the inverse-polynomial (hardening) form below 3.
 ``clip``
     Hard clipping at ``c`` Gaussian sigma, rescaled to unit variance, with
     ``c`` solved so that the peak is the requested multiple of the output
-    RMS (:func:`synth.clipping.solve_clip_level`).
+    RMS (:func:`vibsynth.transforms.clipping.solve_clip_level`).
 
 A memoryless transform bends the spectrum (its Hermite expansion spreads
 power into self-convolutions of the Gaussian spectrum), so the Gaussian
-spectrum is pre-compensated (:func:`synth.compensation.compensate_spectrum`)
+spectrum is pre-compensated (:func:`vibsynth.transforms.compensation.compensate_spectrum`)
 until the predicted output spectrum matches the target.
 
 Where the transform acts
@@ -25,7 +25,7 @@ Where the transform acts
 After overlap-add, on the Gaussian stream, never per frame: overlap-added
 non-Gaussian frames would dilute the kurtosis towards 3.
 :class:`NonGaussianSynthesizer` reads the Gaussian stream from a
-:class:`synth.synthesis.Synthesizer` in hop-aligned blocks, transforms them,
+:class:`vibsynth.generate.pipeline.Synthesizer` in hop-aligned blocks, transforms them,
 high-passes them (below), scales and ramps; the record stays a deterministic
 function of (seed, options), independent of the chunk size it is read in.  (The
 plan also carries the transform as the synthesizer's ``transform`` hook, which
@@ -106,16 +106,16 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.fft
 
-from synth.clipping import ClipTransform, solve_clip_level
-from synth.compensation import CompensationResult, compensate_spectrum
-from synth.errors import InputError, OutOfRangeError
-from synth.hermite import (
+from vibsynth.transforms.clipping import ClipTransform, solve_clip_level
+from vibsynth.transforms.compensation import CompensationResult, compensate_spectrum
+from vibsynth.errors import InputError, OutOfRangeError
+from vibsynth.transforms.hermite import (
     HermiteTransform,
     reachable_kurtosis_range,
     solve_cubic_hermite,
 )
-from synth.profile import AsdProfile
-from synth.synthesis import (  # noqa: F401 - the spill-over high-pass is defined with the synthesis and re-exported
+from vibsynth.profile.asd import AsdProfile
+from vibsynth.generate.pipeline import (  # noqa: F401 - the spill-over high-pass is defined with the synthesis and re-exported
     _HIGHPASS_DESIGN_DB,
     HIGHPASS_ATTENUATION_DB,
     HIGHPASS_PASS_FRACTION,
@@ -156,7 +156,7 @@ _SPILL_NOTE_FRACTION = 0.01
 
 #: Working bytes per sample of a non-Gaussian periodic record (planning included): peak RSS
 #: growth measured at 54 bytes/sample for 2^23 samples (numpy 2.4, scipy 1.17), against
-#: :data:`synth.synthesis.PERIODIC_BYTES_PER_SAMPLE` for a Gaussian one; the drive job
+#: :data:`vibsynth.generate.pipeline.PERIODIC_BYTES_PER_SAMPLE` for a Gaussian one; the drive job
 #: scales the memory budget by their ratio before planning.
 PERIODIC_BYTES_PER_SAMPLE = 56
 
@@ -708,7 +708,7 @@ def design_nongaussian(profile: AsdProfile, plan: SynthesisPlan, transform, *, c
     correct_for_highpass : bool
         Pre-correct Hermite targets for the high-pass (default True).
     **compensation_options
-        Passed to :func:`synth.compensation.compensate_spectrum` (``beta``,
+        Passed to :func:`vibsynth.transforms.compensation.compensate_spectrum` (``beta``,
         ``tolerance``, ``max_iterations``, ...).
 
     Returns
@@ -766,12 +766,12 @@ def nongaussian_plan(profile: AsdProfile, plan: SynthesisPlan, transform, **comp
     profile : AsdProfile
         Target ASD, g^2/Hz.
     plan : SynthesisPlan
-        Gaussian plan from :func:`synth.synthesis.plan_synthesis` (acceleration
+        Gaussian plan from :func:`vibsynth.generate.pipeline.plan_synthesis` (acceleration
         only; any mode, ramps and loop).
     transform : HermiteTransform or ClipTransform
         From :func:`plan_transform`.
     **compensation_options
-        Passed to :func:`synth.compensation.compensate_spectrum`.
+        Passed to :func:`vibsynth.transforms.compensation.compensate_spectrum`.
 
     Returns
     -------
@@ -782,7 +782,7 @@ def nongaussian_plan(profile: AsdProfile, plan: SynthesisPlan, transform, **comp
         target's), and the design (for the sidecar and reports).  Make the
         samples with ``design.synthesizer(plan, seed)``
         (:class:`NonGaussianSynthesizer`: transform, spill-over high-pass,
-        scaling, ramps).  A plain :class:`synth.synthesis.Synthesizer` of the
+        scaling, ramps).  A plain :class:`vibsynth.generate.pipeline.Synthesizer` of the
         plan applies the transform hook but not the high-pass.
 
     Raises
@@ -822,7 +822,7 @@ def nongaussian_plan(profile: AsdProfile, plan: SynthesisPlan, transform, **comp
 class NonGaussianSynthesizer(RecordAccess):
     """Makes the samples of a non-Gaussian record from one seed, in any order of chunks.
 
-    The unit-variance Gaussian stream comes from a :class:`synth.synthesis.Synthesizer`
+    The unit-variance Gaussian stream comes from a :class:`vibsynth.generate.pipeline.Synthesizer`
     of the plan's compensated line spectrum (no transform, no scaling, no
     ramps); each stretch is transformed sample by sample, high-passed
     (:class:`SpillHighpass`), clipped again at the limit for the clip family,
@@ -835,7 +835,7 @@ class NonGaussianSynthesizer(RecordAccess):
     design : NonGaussianDesign
         From :func:`nongaussian_plan`.
     seed : int, numpy.random.SeedSequence or numpy.random.Generator
-        See :func:`synth.synthesis.root_seed_sequence`.
+        See :func:`vibsynth.generate.pipeline.root_seed_sequence`.
     workers : int
         Threads that make the Gaussian frames and filter the blocks (default
         1); the samples are the same bit for bit whatever the number.

@@ -35,8 +35,8 @@ import scipy.signal
 import scipy.stats
 from numpy.lib.stride_tricks import sliding_window_view
 
-from synth.errors import InputError
-from synth.record_input import as_samples, check_rate_hz
+from vibsynth.errors import InputError
+from vibsynth.analysis.record_input import as_samples, check_rate_hz
 
 __all__ = [
     "WelchAccumulator",

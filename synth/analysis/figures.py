@@ -18,8 +18,8 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.figure import Figure
 
-from synth.errors import InputError
-from synth.verify import Verification
+from vibsynth.errors import InputError
+from vibsynth.analysis.verify import Verification
 
 PAPER = "#fbf8f1"
 INK = "#2b2b2b"

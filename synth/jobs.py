@@ -4,10 +4,10 @@ This is the orchestration shared by ``vibsynth generate`` and ``vibsynth run``:
 it checks the whole request before any sample is made, records every option
 that affects the samples in the sidecar (so the file is self-describing and
 can be remade from its seed), and writes atomically through
-:func:`synth.drivefile.write_drive`.
+:func:`vibsynth.io.drivefile.write_drive`.
 
 A request for a kurtosis, skewness or clip level makes a non-Gaussian drive
-(:mod:`synth.nongaussian`): the Gaussian plan's spectrum is pre-compensated,
+(:mod:`vibsynth.generate.nongaussian`): the Gaussian plan's spectrum is pre-compensated,
 the memoryless transform is applied to the Gaussian stream after overlap-add,
 the output is scaled to the target g RMS and only then ramped.  The sidecar
 then carries ``transform`` and ``compensation`` blocks.
@@ -21,9 +21,12 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy
 
-from synth import __version__, drivefile, nongaussian, synthesis
-from synth.errors import InputError
-from synth.profile import AsdProfile
+from vibsynth import __version__
+from vibsynth.generate import nongaussian
+from vibsynth.generate import pipeline as synthesis
+from vibsynth.io import drivefile
+from vibsynth.errors import InputError
+from vibsynth.profile.asd import AsdProfile
 
 #: Samples per chunk handed to the writer.
 CHUNK_SAMPLES = 1 << 16
@@ -173,8 +176,8 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     References
     ----------
     Random-phase inverse-FFT synthesis (Shinozuka & Deodatis 1991, Appl. Mech.
-    Rev. 44(4)); see :mod:`synth.synthesis`.  Non-Gaussian drives: Winterstein
-    (1988), Yamazaki & Shinozuka (1988); see :mod:`synth.nongaussian`.
+    Rev. 44(4)); see :mod:`vibsynth.generate.pipeline`.  Non-Gaussian drives: Winterstein
+    (1988), Yamazaki & Shinozuka (1988); see :mod:`vibsynth.generate.nongaussian`.
     """
     file_format = drivefile.drive_format(request.output)
     subtype = drivefile.check_subtype(file_format, request.subtype)
@@ -303,7 +306,7 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
 
     For .wav/.flac without a given full scale, a first pass finds the record's
     peak (the record is deterministic from its seed) so full scale is the peak
-    plus :data:`synth.drivefile.DEFAULT_HEADROOM`, and ``scale`` is exact.
+    plus :data:`vibsynth.io.drivefile.DEFAULT_HEADROOM`, and ``scale`` is exact.
 
     Parameters
     ----------
@@ -318,7 +321,7 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
 
     References
     ----------
-    See :func:`synth.drivefile.write_drive`.
+    See :func:`vibsynth.io.drivefile.write_drive`.
     """
     plan, synthesizer, request = prepared.plan, prepared.synthesizer, prepared.request
     sidecar = dict(prepared.sidecar)

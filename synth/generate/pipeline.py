@@ -88,8 +88,8 @@ from typing import Callable, Iterator, Sequence
 import numpy as np
 import scipy.fft
 
-from synth.errors import InputError
-from synth.profile import STANDARD_GRAVITY_M_S2, AsdProfile
+from vibsynth.errors import InputError
+from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
 
 #: Amplitude modes: ``fixed`` (random phase only; exact periodogram) and
 #: ``rayleigh`` (complex Gaussian lines; a true Gaussian realisation).
@@ -1495,7 +1495,7 @@ def _synthesizer(profile, duration_s, rate_hz, seed, options) -> tuple[Synthesiz
     if all(value is None for value in shape):
         return Synthesizer(plan, seed), single
     # Non-Gaussian: the same transform, pre-compensation and spill high-pass as `vibsynth generate`.
-    from synth import nongaussian
+    from vibsynth.generate import nongaussian
 
     transform = nongaussian.plan_transform(*shape)
     if transform is None:
@@ -1553,7 +1553,7 @@ def generate_samples(
     kurtosis, skewness, clip : float, optional
         A non-Gaussian drive (Pearson kurtosis, skewness, or every sample within
         ``clip`` x RMS) with its spectrum pre-compensated, exactly as
-        ``vibsynth generate`` makes it (see :mod:`synth.nongaussian`).
+        ``vibsynth generate`` makes it (see :mod:`vibsynth.generate.nongaussian`).
 
     Returns
     -------
@@ -1562,7 +1562,7 @@ def generate_samples(
 
     References
     ----------
-    Shinozuka & Jan (1972); Allen (1977); see :mod:`synth.synthesis`.
+    Shinozuka & Jan (1972); Allen (1977); see :mod:`vibsynth.generate.pipeline`.
     """
     synthesizer, single = _synthesizer(
         profile,
@@ -1613,7 +1613,7 @@ def iter_chunks(
 
     References
     ----------
-    Allen (1977), overlap-add synthesis; see :mod:`synth.synthesis`.
+    Allen (1977), overlap-add synthesis; see :mod:`vibsynth.generate.pipeline`.
     """
     synthesizer, single = _synthesizer(
         profile,

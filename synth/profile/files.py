@@ -36,8 +36,8 @@ import tomllib
 from importlib import resources
 from pathlib import Path
 
-from synth.errors import InputError
-from synth.profile import STANDARD_GRAVITY_M_S2, AsdProfile
+from vibsynth.errors import InputError
+from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
 
 #: Accepted spellings of the two ASD units, mapped to the factor that converts to g^2/Hz.
 _UNITS = {
@@ -54,7 +54,7 @@ _UNIT_HELP = "'g^2/Hz' or '(m/s^2)^2/Hz'"
 _TOP_KEYS = ("name", "description", "unit", "level_db", "grms", "notes", "breakpoints")
 _POINT_KEYS = ("frequency", "asd", "slope_db_per_octave")
 
-PRESET_PACKAGE = "synth.presets"
+PRESET_PACKAGE = "vibsynth.presets"
 
 
 def _suggest(key: str, allowed) -> str:

@@ -31,7 +31,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, special
 
-from synth.errors import InputError, OutOfRangeError
+from vibsynth.errors import InputError, OutOfRangeError
 
 __all__ = [
     "ClipTransform",

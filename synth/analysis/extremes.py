@@ -34,7 +34,7 @@ from scipy.integrate import trapezoid
 from scipy import special
 from scipy.special import erfc, ndtr
 
-from synth.errors import InputError
+from vibsynth.errors import InputError
 
 __all__ = [
     "LargestPeak",

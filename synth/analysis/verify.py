@@ -29,17 +29,17 @@ import numpy as np
 from scipy import integrate
 from scipy.stats import chi2
 
-from synth.errors import InputError
-from synth.extremes import (
+from vibsynth.errors import InputError
+from vibsynth.analysis.extremes import (
     davenport_expected_largest_peak_sigma,
     davenport_largest_peak_std_sigma,
     largest_peak_from_crossing_rate,
     sampled_crossing_rate_hz,
 )
-from synth.profile import AsdProfile
-from synth.record_input import check_rate_hz
-from synth.stats import LevelCrossingAccumulator, MomentAccumulator
-from synth.welch import WelchAccumulator, WelchEstimate, choose_nperseg
+from vibsynth.profile.asd import AsdProfile
+from vibsynth.analysis.record_input import check_rate_hz
+from vibsynth.analysis.stats import LevelCrossingAccumulator, MomentAccumulator
+from vibsynth.analysis.welch import WelchAccumulator, WelchEstimate, choose_nperseg
 
 
 #: The amplitude histogram spans +/- this many standard deviations ...

@@ -29,7 +29,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.special import exprel
 
-from synth.errors import InputError
+from vibsynth.errors import InputError
 
 #: Standard acceleration of gravity in m/s^2 (CGPM 1901, ISO 80000-3).
 STANDARD_GRAVITY_M_S2 = 9.80665
@@ -102,7 +102,7 @@ class AsdProfile:
     -----
     Between breakpoints the ASD is interpolated linearly on log-log axes; it
     is zero below the first and above the last breakpoint.  Use
-    :func:`synth.profile_io.read_profile` or :meth:`from_breakpoints` to build
+    :func:`vibsynth.profile.files.read_profile` or :meth:`from_breakpoints` to build
     one from a table that mixes ASD values and slopes.
     """
 

@@ -35,8 +35,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import erfc
 
-from synth.errors import InputError
-from synth.record_input import as_samples, check_rate_hz
+from vibsynth.errors import InputError
+from vibsynth.analysis.record_input import as_samples, check_rate_hz
 
 __all__ = [
     "MomentAccumulator",

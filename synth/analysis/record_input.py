@@ -7,7 +7,7 @@ import numbers
 
 import numpy as np
 
-from synth.errors import InputError
+from vibsynth.errors import InputError
 
 
 def check_rate_hz(rate_hz: float, name: str = "rate_hz") -> float:

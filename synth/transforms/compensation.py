@@ -39,7 +39,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import fft
 
-from synth.errors import InputError
+from vibsynth.errors import InputError
 
 __all__ = [
     "CompensationResult",

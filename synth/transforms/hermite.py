@@ -36,7 +36,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import optimize, special
 
-from synth.errors import InputError, OutOfRangeError
+from vibsynth.errors import InputError, OutOfRangeError
 
 # Samples per block in apply()/inverse(): small enough for the working set to
 # stay in cache, large enough that the Python loop costs nothing.
@@ -494,7 +494,7 @@ class HermiteTransform:
 
         3 for the softening cubic (exact), 1 for the identity, 40 for the
         hardening form (its series is infinite; the remainder is small and
-        :mod:`synth.compensation` accounts for it).
+        :mod:`vibsynth.transforms.compensation` accounts for it).
         """
         if self.is_identity:
             return 1
