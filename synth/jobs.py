@@ -41,7 +41,7 @@ if TYPE_CHECKING:  # the generator is imported only by the functions that genera
     from vibsynth.profile.asd import AsdProfile
 
 #: Rescale options as the sidecar names them (unit suffix).
-_SCALING_KEYS = {"grms": "grms_g"}
+_SCALING_KEYS = {"grms": "rescale_grms_g", "level_db": "rescale_level_db"}
 
 #: Samples per chunk handed to the writer.
 CHUNK_SAMPLES = 1 << 16
@@ -563,13 +563,16 @@ def write_verify_report(result, drive, folder, file_label: str, data: dict | Non
     return paths
 
 
-def _json_safe(value):
+def _json_safe(value, empty_text=""):
+    """NaN/inf -> None (RFC 8259 has neither); with ``empty_text=None``, empty strings -> None too."""
     if isinstance(value, float) and not np.isfinite(value):
         return None
     if isinstance(value, dict):
-        return {k: _json_safe(v) for k, v in value.items()}
+        return {k: _json_safe(v, empty_text) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
-        return [_json_safe(v) for v in value]
+        return [_json_safe(v, empty_text) for v in value]
+    if value == "" and isinstance(value, str):
+        return empty_text
     return value
 
 
@@ -705,7 +708,7 @@ def run_report(result_files: dict, folder: Path, drive_path: Path, profile: "Asd
             "scale_g": written.get("scale"),
             "peak_g": written.get("peak_g"),
         },
-        "verification": _json_safe(verification.to_dict()),
+        "verification": _json_safe(verification.to_dict(), empty_text=None),
         "figures": {name: Path(path).name for name, path in result_files.items()},
         "warnings": list(run_warnings),
         "caution": DRIVE_CAUTION,

@@ -154,7 +154,7 @@ class AtomicFile:
     >>> target = pathlib.Path(tempfile.mkdtemp()) / "note.txt"
     >>> with AtomicFile(target) as pending:
     ...     _ = pending.temporary.write_text("done")
-    ...     pending.commit()
+    ...     _ = pending.commit()
     >>> target.read_text()
     'done'
 

@@ -50,7 +50,7 @@ COMPENSATION_REPORT_KEYS = ("achievable", "worst_in_band_deviation_db", "worst_i
                             "residual_relative", "out_of_band_fraction", "iterations", "converged", "description")
 
 #: Old (0.1) key -> new key inside ``options``.
-_OPTION_RENAMES = {"memory_budget_mb": "memory_budget_mib", "grms": "grms_g"}
+_OPTION_RENAMES = {"memory_budget_mb": "memory_budget_mib", "grms": "rescale_grms_g", "level_db": "rescale_level_db"}
 #: Old (0.1) options that are now top-level keys only.
 _OPTION_DROPPED = ("seed", "rate_hz", "subtype", "duration_s")
 
@@ -112,9 +112,7 @@ class Sidecar:
     rate : float or None
         Sample rate, Hz; set by the writer.
     samples : int or None
-        Number of samples; set by the writer.
-    duration_s : float or None
-        ``samples / rate``, s.
+        Number of samples; set by the writer (``duration_s`` is ``samples / rate``, s).
     format, subtype : str or None
         File and sample format; set by the writer.
     columns : tuple of str
@@ -157,7 +155,6 @@ class Sidecar:
     scale: float | None = None
     rate: float | None = None
     samples: int | None = None
-    duration_s: float | None = None
     format: str | None = None
     subtype: str | None = None
     columns: tuple = ()
@@ -178,6 +175,13 @@ class Sidecar:
     schema_version: int = SCHEMA_VERSION
     legacy: bool = field(default=False, compare=False)
 
+    @property
+    def duration_s(self) -> float | None:
+        """``samples / rate`` in s (None until the writer has set both)."""
+        if self.samples is None or not self.rate:
+            return None
+        return self.samples / self.rate
+
     # ------------------------------------------------------------ building
     def with_file(self, *, scale: float, rate: float, samples: int, file_format: str, subtype: str, quantities,
                   peak_g: float, tool: dict | None = None) -> "Sidecar":
@@ -195,8 +199,7 @@ class Sidecar:
         """
         names = tuple(COLUMN_NAMES[q] for q in quantities)
         return dataclasses.replace(
-            self, scale=float(scale), rate=float(rate), samples=int(samples), duration_s=int(samples) / float(rate),
-            format=file_format, subtype=subtype,
+            self, scale=float(scale), rate=float(rate), samples=int(samples), format=file_format, subtype=subtype,
             columns=(("time_s",) if file_format == "csv" else ()) + names,
             units={COLUMN_NAMES[q]: QUANTITY_UNITS[q] for q in quantities}, peak_g=float(peak_g),
             tool=self.tool if self.tool is not None else tool,
@@ -277,7 +280,6 @@ class Sidecar:
             scale=float(data["scale"]),
             rate=float(data["rate"]),
             samples=int(data["samples"]),
-            duration_s=int(data["samples"]) / float(data["rate"]),
             format=data.get("format"),
             subtype=data.get("subtype") if isinstance(data.get("subtype"), str) else None,
             columns=tuple(data.get("columns") or ()),
