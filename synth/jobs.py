@@ -726,7 +726,7 @@ class PreparedRun:
     folder, drive_path : pathlib.Path
     prepared : PreparedDrive
     warnings : tuple of str
-        Warnings of the planning.
+        Warnings of the planning (each also issued as a :class:`~vibsynth.errors.VibsynthWarning`).
     """
 
     request: RunRequest
@@ -775,14 +775,30 @@ def prepare_run(profile: "AsdProfile", request: RunRequest) -> PreparedRun:
     drive_request = dataclasses.replace(request.drive, output=str(drive_path))
     folder_created = not folder.exists()
     folder.mkdir(parents=True, exist_ok=True)
-    try:
-        prepared = prepare_drive(profile, drive_request)
-    except BaseException:
-        if folder_created and not any(folder.iterdir()):
-            folder.rmdir()
-        raise
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", VibsynthWarning)
+        try:
+            prepared = prepare_drive(profile, drive_request)
+        except BaseException:
+            if folder_created and not any(folder.iterdir()):
+                folder.rmdir()
+            raise
+    collected = _merge_warnings(list(prepared.warnings), caught)
+    for message in collected:
+        warnings.warn(message, VibsynthWarning, stacklevel=2)
     return PreparedRun(request=request, profile=profile, folder=folder, drive_path=drive_path, prepared=prepared,
-                       warnings=tuple(prepared.warnings))
+                       warnings=tuple(collected))
+
+
+def _merge_warnings(collected: list, caught) -> list:
+    """Add the VibsynthWarning messages of ``caught`` not yet in ``collected``; pass other warnings on as they came."""
+    for item in caught:
+        if issubclass(item.category, VibsynthWarning):
+            if str(item.message) not in collected:
+                collected.append(str(item.message))
+        else:  # anything else (numpy, matplotlib) goes on as it came
+            warnings.warn_explicit(item.message, item.category, item.filename, item.lineno)
+    return collected
 
 
 def complete_run(run: PreparedRun, progress: Callable[[int], None] | None = None) -> RunResult:
@@ -801,8 +817,8 @@ def complete_run(run: PreparedRun, progress: Callable[[int], None] | None = None
     Returns
     -------
     RunResult
-        With every warning of the run; each is also issued as a
-        :class:`~vibsynth.errors.VibsynthWarning`.
+        With every warning of the run (planning included); those after the
+        planning are issued here as :class:`~vibsynth.errors.VibsynthWarning`.
 
     Examples
     --------
@@ -827,12 +843,7 @@ def complete_run(run: PreparedRun, progress: Callable[[int], None] | None = None
         verification = verify_drive(drive, profile, criteria, request.resolution_hz, request.dof)
         write_profile(profile, folder / "profile.toml")
         figures = write_report_figures(verification, folder, title=f"{drive_path.name} ({profile.name})")
-    for item in caught:
-        if issubclass(item.category, VibsynthWarning):
-            if str(item.message) not in collected:
-                collected.append(str(item.message))
-        else:  # anything else (numpy, matplotlib) goes on as it came
-            warnings.warn_explicit(item.message, item.category, item.filename, item.lineno)
+    _merge_warnings(collected, caught)
     if verification.segment_message and verification.segment_message not in collected:
         collected.append(verification.segment_message)
     if not verification.passed:
@@ -840,7 +851,7 @@ def complete_run(run: PreparedRun, progress: Callable[[int], None] | None = None
     report = run_report(figures, folder, drive_path, profile, run.prepared.request.profile_source or None, written,
                         verification, collected)
     write_json_atomic(folder / "report.json", report)
-    for message in collected:
+    for message in collected[len(run.warnings):]:  # those of the planning were issued by prepare_run
         warnings.warn(message, VibsynthWarning, stacklevel=2)
     files = (drive_path.name, drivefile.sidecar_path(drive_path).name, "profile.toml", "report.json", "report.pdf",
              *(f"{name}.png" for name in FIGURE_NAMES))
