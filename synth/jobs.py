@@ -1,16 +1,27 @@
-"""One drive file from one request: plan, synthesize, set full scale, write with its sidecar.
+"""The jobs: one drive file from one request, verifying a drive, and the whole run into one folder.
 
-This is the orchestration shared by ``vibsynth generate`` and ``vibsynth run``:
-it checks the whole request before any sample is made, records every option
-that affects the samples in the sidecar (so the file is self-describing and
-can be remade from its seed), and writes atomically through
-:func:`vibsynth.io.drivefile.write_drive`.
+Drive job (``vibsynth generate``): :func:`prepare_drive` checks the whole
+request before any sample is made and plans it; :func:`write_prepared_drive`
+synthesizes and writes the file and its sidecar (a
+:class:`~vibsynth.io.sidecar.Sidecar` recording every option that affects the
+samples, so the file can be remade from its seed), atomically.  A request for
+a kurtosis, skewness or clip level makes a non-Gaussian drive; the sidecar then
+carries ``transform`` and ``compensation`` blocks.
 
-A request for a kurtosis, skewness or clip level makes a non-Gaussian drive
-(:mod:`vibsynth.generate.nongaussian`): the Gaussian plan's spectrum is pre-compensated,
-the memoryless transform is applied to the Gaussian stream after overlap-add,
-the output is scaled to the target g RMS and only then ramped.  The sidecar
-then carries ``transform`` and ``compensation`` blocks.
+Verify side (``vibsynth verify``): :func:`drive_target`, :func:`drive_criteria`,
+:func:`verify_drive`, :func:`verification_data`, :func:`write_verify_report`.
+These never import the generator.
+
+Run job (``vibsynth run``): :func:`prepare_run` + :func:`complete_run` (or
+:func:`run_job`) generate, verify and write drive, sidecar, profile.toml,
+figures, report.pdf and report.json into one folder, returning a
+:class:`RunResult` that carries every warning (each also issued as a
+:class:`~vibsynth.errors.VibsynthWarning`).
+
+References
+----------
+Random-phase inverse-FFT synthesis (Shinozuka & Deodatis 1991, Appl. Mech.
+Rev. 44(4)); Welch (1967); Winterstein (1988); Yamazaki & Shinozuka (1988).
 """
 
 from __future__ import annotations

@@ -226,3 +226,12 @@ def test_0_1_drive_copied_without_its_sidecar_needs_the_rate(tmp_path):
     shutil.copyfile(V0_1 / "gaussian-fixed-periodic.npy", tmp_path / "bare.npy")
     status, _, err = _quiet_main(["verify", tmp_path / "bare.npy", "--profile", "bench-flat"])
     assert status == 2 and "--rate" in err
+
+
+def test_writer_refuses_sidecar_keys_that_are_not_fields(tmp_path):
+    from vibsynth.errors import InputError
+    from vibsynth.io.drivefile import write_drive
+
+    with pytest.raises(InputError, match="'frame_length'"):
+        write_drive(tmp_path / "x.npy", [np.zeros(4)], rate_hz=100.0, samples=4, sidecar={"frame_length": 4})
+    assert list(tmp_path.iterdir()) == []

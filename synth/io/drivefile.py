@@ -38,6 +38,7 @@ Microsoft/IBM RIFF WAVE format; FLAC format specification (xiph.org); NumPy
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
 import shutil
@@ -372,6 +373,10 @@ class DriveWriter:
         if sidecar is None:
             sidecar = Sidecar()
         elif isinstance(sidecar, dict):
+            unknown = sorted(set(sidecar) - {f.name for f in dataclasses.fields(Sidecar)})
+            if unknown:
+                raise InputError(f"sidecar keys {', '.join(map(repr, unknown))} are not sidecar fields; use "
+                                 "those of vibsynth.io.sidecar.Sidecar", "sidecar")
             sidecar = Sidecar(**sidecar)
         self.extra = sidecar
         self.written = 0
