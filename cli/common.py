@@ -8,12 +8,8 @@ import sys
 import click
 
 
-#: Printed (to stderr) whenever a drive file is written.
-DRIVE_CAUTION = (
-    "CAUTION: a drive file is open-loop. Play it only through a closed-loop vibration controller "
-    "with its own alarm and abort limits; check the shaker's stroke, velocity and force limits "
-    "against the figures above; follow your lab's procedures, local codes and licensed practice."
-)
+#: Printed (to stderr) whenever a drive file is written (one text, kept in the library).
+from vibsynth.io.caution import DRIVE_CAUTION  # noqa: E402,F401
 
 
 def fail(message: str) -> "NoReturn":  # noqa: F821

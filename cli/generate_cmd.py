@@ -166,10 +166,17 @@ def generate(profile, output, duration, rate, seed, amplitude, resolution, loop,
 
 def write_with_progress(prepared, quiet: bool) -> dict:
     """Write a prepared drive, with a progress bar on a terminal and clean removal on SIGTERM."""
+    with progress_for(prepared, quiet) as progress:
+        return drive_job.write_prepared_drive(prepared, progress)
+
+
+@contextlib.contextmanager
+def progress_for(prepared, quiet: bool):
+    """A progress callback for writing ``prepared`` (a bar on a terminal), with clean removal on SIGTERM."""
     total = prepared.plan.total_samples
     show = is_interactive_stderr() and not quiet and total >= PROGRESS_MIN_SAMPLES
     with _terminate_as_interrupt(), Progress(show, prepared.passes * total, "generating") as progress:
-        return drive_job.write_prepared_drive(prepared, progress)
+        yield progress
 
 
 def format_written(prepared, written: dict) -> str:
@@ -187,7 +194,7 @@ def format_written(prepared, written: dict) -> str:
         f"  stroke      {target.displacement_peak_to_peak_3sigma_m * 1e3:.4g} mm peak-to-peak (3 sigma); "
         f"velocity {target.velocity_rms_m_s:.4g} m/s RMS ({3 * target.velocity_rms_m_s:.4g} m/s at 3 sigma)",
         f"  generation  {plan.mode}, {'record' if plan.mode == 'periodic' else 'frames'} of {plan.frame_length} "
-        f"samples ({plan.resolution_hz:.4g} Hz lines), {plan.amplitude} amplitudes, seed {prepared.sidecar['seed']}"
+        f"samples ({plan.resolution_hz:.4g} Hz lines), {plan.amplitude} amplitudes, seed {prepared.seed}"
         + (", loops seamlessly" if request.loop else "")
         + (f", ramps {request.ramp_s:g} s" if plan.ramp_in_samples else ""),
     ]

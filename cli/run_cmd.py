@@ -2,23 +2,20 @@
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 
 import click
 
-from vibsynth.cli.common import DRIVE_CAUTION, json_safe, load_profile, warn
-from vibsynth.cli.generate_cmd import clip_option, format_written, kurtosis_option, skewness_option, write_with_progress
+from vibsynth.cli.common import DRIVE_CAUTION, load_profile, warn
+from vibsynth.cli.generate_cmd import clip_option, format_written, kurtosis_option, progress_for, skewness_option
 from vibsynth.cli.verify_cmd import (
     _dof_option,
     _grms_tolerance_option,
     _min_fraction_option,
     _resolution_option,
     _tolerance_option,
-    criteria_for,
     format_verification,
-    run_verification,
-    write_json_atomic,
+    parse_tolerance,
 )
 from vibsynth import jobs as drive_job
 
@@ -38,11 +35,6 @@ def default_rate_hz(top_frequency_hz: float) -> float:
         if rate >= 2.56 * top_frequency_hz:
             return float(rate)
     return float(2 ** int(2.56 * top_frequency_hz).bit_length())
-
-
-def _folder_name(profile_name: str) -> str:
-    safe = re.sub(r"[^A-Za-z0-9._-]+", "-", profile_name).strip("-") or "profile"
-    return f"vibsynth-run-{safe}"
 
 
 @click.command()
@@ -90,74 +82,59 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
     with alarm and abort limits, within the shaker's stroke, velocity and force
     limits, following your lab's procedures, local codes and licensed practice.
     """
-    from vibsynth.io.drivefile import open_drive
-    from vibsynth.analysis.figures import write_report_figures
-    from vibsynth.profile.files import write_profile
+    import warnings
+
+    from vibsynth.errors import VibsynthWarning
 
     spec = profile or DEFAULT_PRESET
     target = load_profile(spec, grms, level_db)
     rate_hz = rate if rate is not None else default_rate_hz(target.frequency_max_hz)
-    folder = Path(out_dir) if out_dir else Path(_folder_name(target.name))
+    folder = Path(out_dir) if out_dir else drive_job.default_run_folder(target.name)
     if folder.exists() and not folder.is_dir():
         raise click.UsageError(f"{folder} exists and is not a folder; give another --out")
-    drive_path = folder / f"drive.{file_format}"
-    request = drive_job.DriveRequest(
-        output=str(drive_path),
-        duration_s=duration,
-        rate_hz=rate_hz,
-        seed=seed,
-        amplitude=amplitude,
-        ramp_s=ramp_s,
-        stroke_limit_mm=stroke_limit,
-        velocity_limit_m_s=velocity_limit,
-        profile_source=spec,
-        scaling={"grms": grms, "level_db": level_db},
-        kurtosis=kurtosis,
-        skewness=skewness,
-        clip=clip,
+    request = drive_job.RunRequest(
+        folder=str(folder),
+        file_format=file_format,
+        drive=drive_job.DriveRequest(
+            output="",
+            duration_s=duration,
+            rate_hz=rate_hz,
+            seed=seed,
+            amplitude=amplitude,
+            ramp_s=ramp_s,
+            stroke_limit_mm=stroke_limit,
+            velocity_limit_m_s=velocity_limit,
+            profile_source=spec,
+            scaling={"grms": grms, "level_db": level_db},
+            kurtosis=kurtosis,
+            skewness=skewness,
+            clip=clip,
+        ),
+        tolerance_db=parse_tolerance(tolerance),  # checked before any work is done
+        grms_tolerance_percent=grms_tolerance,
+        min_fraction_within=min_fraction,
+        resolution_hz=resolution,
+        dof=dof,
     )
-    # Check the verification options before any work is done.
-    from vibsynth.cli.verify_cmd import parse_tolerance
-
-    parse_tolerance(tolerance)
-    folder_created = not folder.exists()
-    folder.mkdir(parents=True, exist_ok=True)
-    try:
-        prepared = drive_job.prepare_drive(target, request)
-    except Exception:
-        if folder_created and not any(folder.iterdir()):
-            folder.rmdir()
-        raise
-    for message in prepared.warnings:
-        warn(message)
-    written = write_with_progress(prepared, quiet=False)
-    click.echo(format_written(prepared, written))
-
-    drive = open_drive(drive_path)
-    criteria = criteria_for(drive, tolerance, grms_tolerance, min_fraction)
-    result = run_verification(drive, target, criteria, resolution, dof)
-    if result.segment_message:
-        warn(result.segment_message)
-    write_profile(target, folder / "profile.toml")
-    figures = write_report_figures(result, folder, title=f"{drive_path.name} ({target.name})")
-    report = {
-        "drive": str(drive_path),
-        "sidecar": str(drive_path) + ".json",
-        "profile": target.summary(),
-        "generation": {key: written.get(key) for key in ("seed", "mode", "frame_length", "resolution_hz", "amplitude",
-                                                           "rate", "samples", "duration_s", "scale", "peak_g")},
-        "verification": json_safe(result.to_dict()),
-        "figures": figures,
-    }
-    write_json_atomic(folder / "report.json", report)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", VibsynthWarning)  # the result carries them; printed below, once each
+        pending = drive_job.prepare_run(target, request)
+        for message in pending.warnings:
+            warn(message)
+        with progress_for(pending.prepared, quiet=False) as progress:
+            result = drive_job.complete_run(pending, progress)
+    click.echo(format_written(pending.prepared, result.written))
+    for message in result.warnings[len(pending.warnings):]:
+        if "did NOT pass" not in message:
+            warn(message)
     click.echo("")
-    click.echo(format_verification(result, drive_path.name))
+    click.echo(format_verification(result.verification, result.drive_path.name))
     click.echo("")
     click.echo(f"files in {folder}/:")
-    for name in (drive_path.name, drive_path.name + ".json", "profile.toml", "report.json", "report.pdf",
-                 "asd.png", "amplitude.png", "excerpt.png", "rms.png"):
+    for name in result.files:
         click.echo(f"  {name}")
-    if not result.passed:
-        warn("the drive did NOT pass verification; see report.pdf before using it")
+    for message in result.warnings[len(pending.warnings):]:
+        if "did NOT pass" in message:
+            warn(message)
     click.echo(DRIVE_CAUTION, err=True)
     click.get_current_context().exit(0 if result.passed else 1)

@@ -4,17 +4,12 @@ from __future__ import annotations
 
 import json
 import math
-import os
 from pathlib import Path
 
 import click
 
-from vibsynth.cli.common import json_safe, load_profile, warn
+from vibsynth.cli.common import load_profile, warn
 from vibsynth.errors import InputError
-
-#: Samples per chunk read from a drive file.
-READ_CHUNK_SAMPLES = 1 << 18
-
 
 def parse_tolerance(text: str) -> tuple[float, float]:
     """``"3"`` -> (-3, +3); ``"-2,3"`` or ``"-2:+3"`` -> (-2, +3) (dB)."""
@@ -35,59 +30,6 @@ def parse_tolerance(text: str) -> tuple[float, float]:
     return low, high
 
 
-def profile_from_sidecar(drive) -> "AsdProfile":  # noqa: F821
-    """The target recorded in a drive's sidecar (breakpoints in g^2/Hz)."""
-    from vibsynth.profile.asd import AsdProfile
-
-    side = f"{drive.path}.json"
-    if not drive.sidecar or "profile" not in drive.sidecar:
-        raise InputError("has no sidecar with a profile; give the target with --profile PROFILE", str(drive.path))
-    record = drive.sidecar["profile"]
-    try:
-        points = record["breakpoints"]
-        frequencies = [float(p["frequency"]) for p in points]
-        values = [float(p["asd"]) for p in points]
-    except (KeyError, TypeError, ValueError):
-        raise InputError("profile.breakpoints must be a list of {frequency, asd}", side, "profile") from None
-    return AsdProfile(frequencies, values, name=str(record.get("name", "sidecar profile")),
-                      description=str(record.get("description", "")), source=side)
-
-
-def criteria_for(drive, tolerance, grms_tolerance, min_fraction):
-    """Verification criteria: the options, plus amplitude targets the sidecar asked for."""
-    from vibsynth.analysis.verify import Criteria
-
-    low, high = parse_tolerance(tolerance)
-    options = (drive.sidecar or {}).get("options", {}) if drive.sidecar else {}
-    kurtosis = options.get("kurtosis")
-    skewness = options.get("skewness")
-    clip = options.get("clip")
-    return Criteria(
-        tolerance_low_db=low,
-        tolerance_high_db=high,
-        grms_tolerance_percent=grms_tolerance,
-        min_fraction_within=min_fraction,
-        kurtosis_target=float(kurtosis) if kurtosis is not None else None,
-        skewness_target=float(skewness) if skewness is not None else None,
-        crest_factor_limit=float(clip) if clip is not None else None,
-    )
-
-
-def sidecar_compensation(drive) -> dict | None:
-    """What the generator predicted for a non-Gaussian drive (the sidecar's ``compensation`` block), or None.
-
-    Copied as it is into the verify report under ``compensation``, so the
-    achievable residual the generator promised sits beside what the verifier
-    measured; the verifier itself never reads it.
-    """
-    block = drive.sidecar.get("compensation") if isinstance(drive.sidecar, dict) else None
-    if not isinstance(block, dict):
-        return None
-    keys = ("achievable", "worst_in_band_deviation_db", "worst_in_band_deviation_frequency_hz", "residual_relative",
-            "out_of_band_fraction", "iterations", "converged", "description")
-    return {key: block.get(key) for key in keys if key in block}
-
-
 def format_compensation(block: dict) -> str:
     """One report line for the sidecar's compensation prediction."""
     worst = block.get("worst_in_band_deviation_db")
@@ -95,29 +37,6 @@ def format_compensation(block: dict) -> str:
     if block.get("achievable") is False:
         text += " (the generator reported the target as not fully reachable)"
     return f"  compensation  {text} (from the sidecar, non-Gaussian drive)"
-
-
-def run_verification(drive, target, criteria, resolution=None, dof=None):
-    """Verify an open drive file against a target (streamed, two passes); errors name the file."""
-    from vibsynth.analysis.verify import verify_record
-
-    start, stop = drive.steady_range
-    try:
-        return verify_record(
-            lambda: drive.iter_chunks(READ_CHUNK_SAMPLES),
-            drive.rate_hz,
-            target,
-            criteria,
-            n_samples=drive.samples,
-            resolution_hz=resolution,
-            target_dof=dof,
-            skip_start_samples=start,
-            skip_end_samples=drive.samples - stop,
-        )
-    except InputError as error:
-        if error.source:
-            raise
-        raise InputError(error.message, str(drive.path), error.location) from None
 
 
 def _db(value) -> str:
@@ -179,24 +98,6 @@ def format_verification(result, name: str) -> str:
     return "\n".join(lines)
 
 
-def write_json_atomic(path: Path, data) -> None:
-    """Write JSON under a temporary name and rename it into place."""
-    temporary = path.with_name(f".{path.name}.partial-{os.getpid()}")
-    try:
-        temporary.write_text(json.dumps(data, indent=2, allow_nan=False, default=_json_default) + "\n", encoding="utf-8")
-        os.replace(temporary, path)
-    finally:
-        if temporary.exists():
-            temporary.unlink()
-
-
-def _json_default(value):
-    try:
-        return float(value)
-    except (TypeError, ValueError):
-        return str(value)
-
-
 _tolerance_option = click.option(
     "--tolerance", default="3", show_default=True, metavar="DB|LOW,HIGH",
     help="ASD tolerance band in dB: 3 for ±3 dB, or LOW,HIGH such as -2,3 "
@@ -247,30 +148,21 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     in the sidecar are left out. Kurtosis, skewness or clip targets recorded in
     the sidecar are judged too.
     """
+    from vibsynth import jobs
     from vibsynth.io.drivefile import open_drive
 
     drive = open_drive(file, rate_hz=rate, scale=scale)
     if level_db is not None and not profile_spec:
         raise click.UsageError("--level-db shifts a --profile target; give --profile too")
-    target = load_profile(profile_spec, level_db=level_db) if profile_spec else profile_from_sidecar(drive)
-    criteria = criteria_for(drive, tolerance, grms_tolerance, min_fraction)
-    result = run_verification(drive, target, criteria, resolution, dof)
+    target = load_profile(profile_spec, level_db=level_db) if profile_spec else jobs.drive_target(drive)
+    criteria = jobs.drive_criteria(drive, parse_tolerance(tolerance), grms_tolerance, min_fraction)
+    result = jobs.verify_drive(drive, target, criteria, resolution, dof)
     if result.segment_message:
         warn(result.segment_message)
-    data = json_safe(result.to_dict())
-    data["file"] = str(file)
-    compensation = sidecar_compensation(drive)
-    if compensation is not None:
-        data["compensation"] = json_safe(compensation)
+    data = jobs.verification_data(result, drive, str(file))
+    compensation = data.get("compensation")
     if report_dir:
-        folder = Path(report_dir)
-        folder.mkdir(parents=True, exist_ok=True)
-        from vibsynth.analysis.figures import write_report_figures
-
-        paths = write_report_figures(result, folder, title=Path(file).name)
-        write_json_atomic(folder / "verify.json", data)
-        paths["json"] = str(folder / "verify.json")
-        data["report"] = paths
+        data["report"] = jobs.write_verify_report(result, drive, report_dir, str(file), data)
     if as_json:
         click.echo(json.dumps(data, indent=2, allow_nan=False))
     else:

@@ -1,32 +1,58 @@
-"""One drive file from one request: plan, synthesize, set full scale, write with its sidecar.
+"""The jobs: one drive file from one request, verifying a drive, and the whole run into one folder.
 
-This is the orchestration shared by ``vibsynth generate`` and ``vibsynth run``:
-it checks the whole request before any sample is made, records every option
-that affects the samples in the sidecar (so the file is self-describing and
-can be remade from its seed), and writes atomically through
-:func:`vibsynth.io.drivefile.write_drive`.
+Drive job (``vibsynth generate``): :func:`prepare_drive` checks the whole
+request before any sample is made and plans it; :func:`write_prepared_drive`
+synthesizes and writes the file and its sidecar (a
+:class:`~vibsynth.io.sidecar.Sidecar` recording every option that affects the
+samples, so the file can be remade from its seed), atomically.  A request for
+a kurtosis, skewness or clip level makes a non-Gaussian drive; the sidecar then
+carries ``transform`` and ``compensation`` blocks.
 
-A request for a kurtosis, skewness or clip level makes a non-Gaussian drive
-(:mod:`vibsynth.generate.nongaussian`): the Gaussian plan's spectrum is pre-compensated,
-the memoryless transform is applied to the Gaussian stream after overlap-add,
-the output is scaled to the target g RMS and only then ramped.  The sidecar
-then carries ``transform`` and ``compensation`` blocks.
+Verify side (``vibsynth verify``): :func:`drive_target`, :func:`drive_criteria`,
+:func:`verify_drive`, :func:`verification_data`, :func:`write_verify_report`.
+These never import the generator.
+
+Run job (``vibsynth run``): :func:`prepare_run` + :func:`complete_run` (or
+:func:`run_job`) generate, verify and write drive, sidecar, profile.toml,
+figures, report.pdf and report.json into one folder, returning a
+:class:`RunResult` that carries every warning (each also issued as a
+:class:`~vibsynth.errors.VibsynthWarning`).
+
+References
+----------
+Random-phase inverse-FFT synthesis (Shinozuka & Deodatis 1991, Appl. Mech.
+Rev. 44(4)); Welch (1967); Winterstein (1988); Yamazaki & Shinozuka (1988).
 """
 
 from __future__ import annotations
 
+import dataclasses
+import datetime
+import hashlib
 import os
+import re
+import warnings
 from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Callable
 
 import numpy as np
-import scipy
 
 from vibsynth import __version__
-from vibsynth.generate import nongaussian
-from vibsynth.generate import pipeline as synthesis
+from vibsynth.errors import InputError, VibsynthWarning
 from vibsynth.io import drivefile
-from vibsynth.errors import InputError
-from vibsynth.profile.asd import AsdProfile
+from vibsynth.io.atomic import write_json_atomic
+from vibsynth.io.caution import DRIVE_CAUTION
+from vibsynth.io.sidecar import Sidecar, profile_block
+
+if TYPE_CHECKING:  # the generator is imported only by the functions that generate
+    from vibsynth.analysis.verify import Criteria, Verification
+    from vibsynth.generate import nongaussian
+    from vibsynth.generate import pipeline as synthesis
+    from vibsynth.profile.asd import AsdProfile
+
+#: Rescale options as the sidecar names them (unit suffix).
+_SCALING_KEYS = {"grms": "rescale_grms_g", "level_db": "rescale_level_db"}
 
 #: Samples per chunk handed to the writer.
 CHUNK_SAMPLES = 1 << 16
@@ -139,7 +165,8 @@ class PreparedDrive:
     synthesizer: synthesis.Synthesizer
     file_format: str
     subtype: str
-    sidecar: dict
+    sidecar: Sidecar
+    seed: int
     warnings: tuple
     design: nongaussian.NonGaussianDesign | None = None
 
@@ -179,6 +206,11 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     Rev. 44(4)); see :mod:`vibsynth.generate.pipeline`.  Non-Gaussian drives: Winterstein
     (1988), Yamazaki & Shinozuka (1988); see :mod:`vibsynth.generate.nongaussian`.
     """
+    import scipy
+
+    from vibsynth.generate import nongaussian
+    from vibsynth.generate import pipeline as synthesis
+
     file_format = drivefile.drive_format(request.output)
     subtype = drivefile.check_subtype(file_format, request.subtype)
     names = tuple(request.quantities)
@@ -190,12 +222,6 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     if request.full_scale_g is not None and file_format not in ("wav", "flac"):
         raise InputError(f"--full-scale applies to .wav/.flac; .{file_format} holds values in g", "--full-scale")
     transform = nongaussian.plan_transform(request.kurtosis, request.skewness, request.clip)
-    if transform is not None and len(names) > 1:
-        raise InputError(
-            "velocity/displacement columns are integrated from Gaussian lines and cannot follow a non-Gaussian "
-            "(kurtosis, skewness or clip) acceleration; drop those columns or the non-Gaussian options",
-            "--quantities",
-        )
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
     budget_bytes = int(min(request.memory_budget_mb * 2**20, usable_memory_bytes() / 2))
     if transform is not None:
@@ -228,66 +254,53 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         synthesizer = synthesis.Synthesizer(plan, seed, workers)
     else:
         synthesizer = design.synthesizer(plan, seed, workers)
-    sidecar = {
-        "seed": seed,
-        "mode": plan.mode,
-        "frame_length": plan.frame_length,
-        "resolution_hz": plan.resolution_hz,
-        "amplitude": plan.amplitude,
+    options = {
+        "amplitude": request.amplitude,
+        "resolution_hz": request.resolution_hz,
         "loop": bool(request.loop),
-        "ramp_in_s": plan.ramp_in_samples / plan.rate_hz,
-        "ramp_out_s": plan.ramp_out_samples / plan.rate_hz,
-        "grms_target": profile.grms,
-        "grms_lines": grms_lines,
-        "seed_derivation": "numpy SeedSequence(seed) children: overlap-add frame j uses spawn_key (0, j), "
-        "a periodic record spawn_key (1,); PCG64; one standard normal pair per line",
-        "options": {
-            "duration_s": request.duration_s,
-            "rate_hz": request.rate_hz,
-            "seed": seed,
-            "amplitude": request.amplitude,
-            "resolution_hz": request.resolution_hz,
-            "loop": bool(request.loop),
-            "quantities": list(names),
-            "subtype": subtype,
-            "full_scale_g": request.full_scale_g,
-            "ramp_s": request.ramp_s,
-            "memory_budget_mb": request.memory_budget_mb,
-            "kurtosis": request.kurtosis,
-            "skewness": request.skewness,
-            "clip": request.clip,
-            **request.scaling,
-        },
-        "profile": {
-            "name": profile.name,
-            "description": profile.description,
-            "source": request.profile_source,
-            "breakpoints": [
-                {"frequency": float(f), "asd": float(s)} for f, s in zip(profile.frequencies_hz, profile.asd_g2_per_hz)
-            ],
-            "grms": profile.grms,
-            "velocity_rms_m_s": profile.velocity_rms_m_s,
-            "displacement_rms_m": profile.displacement_rms_m,
-            "displacement_peak_to_peak_3sigma_m": profile.displacement_peak_to_peak_3sigma_m,
-        },
-        "warnings": list(plan.warnings),
-        "tool": {"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__},
+        "quantities": list(names),
+        "full_scale_g": request.full_scale_g,
+        "ramp_s": request.ramp_s,
+        "memory_budget_mib": request.memory_budget_mb,
+        "kurtosis": request.kurtosis,
+        "skewness": request.skewness,
+        "clip": request.clip,
+        **{_SCALING_KEYS.get(key, key): value for key, value in request.scaling.items()},
     }
+    seed_derivation = (
+        "numpy SeedSequence(seed) children: overlap-add frame j uses spawn_key (0, j), "
+        "a periodic record spawn_key (1,); PCG64; one standard normal pair per line"
+    )
     if plan.spill_highpass is not None:
-        sidecar["spill_highpass"] = plan.spill_highpass.to_dict()
-        sidecar["seed_derivation"] += (
+        seed_derivation += (
             f"; overlap-add: sample n is sample n + {plan.spill_highpass.half_length} of the windowed sum of frames, "
             "high-passed by the spill_highpass FIR (the window's leakage below the band removed)"
         )
-    if design is not None:
-        sidecar["transform"] = design.transform_block()
-        sidecar["compensation"] = design.compensation_record()
-        if plan.mode == "overlap-add":
-            block = synthesizer.block_samples
-            sidecar["seed_derivation"] += (
-                f"; non-Gaussian: sample n is sample n + {block // 2} of the Gaussian stream of the compensated "
-                f"lines, transformed and high-passed in blocks of {block} samples"
-            )
+    if design is not None and plan.mode == "overlap-add":
+        block = synthesizer.block_samples
+        seed_derivation += (
+            f"; non-Gaussian: sample n is sample n + {block // 2} of the Gaussian stream of the compensated "
+            f"lines, transformed and high-passed in blocks of {block} samples"
+        )
+    sidecar = Sidecar(
+        seed=seed,
+        ramp_in_s=plan.ramp_in_samples / plan.rate_hz,
+        ramp_out_s=plan.ramp_out_samples / plan.rate_hz,
+        options=options,
+        plan={
+            "mode": plan.mode,
+            "frame_length_samples": plan.frame_length,
+            "line_spacing_hz": plan.resolution_hz,
+            "grms_lines_g": grms_lines,
+            "seed_derivation": seed_derivation,
+            "spill_highpass": plan.spill_highpass.to_dict() if plan.spill_highpass is not None else None,
+        },
+        profile=profile_block(profile, request.profile_source),
+        transform=design.transform_block() if design is not None else None,
+        compensation=design.compensation_record() if design is not None else None,
+        warnings=tuple(plan.warnings),
+        tool={"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__},
+    )
     return PreparedDrive(
         request=request,
         profile=profile,
@@ -296,6 +309,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         file_format=file_format,
         subtype=subtype,
         sidecar=sidecar,
+        seed=seed,
         warnings=tuple(plan.warnings),
         design=design,
     )
@@ -324,13 +338,13 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
     See :func:`vibsynth.io.drivefile.write_drive`.
     """
     plan, synthesizer, request = prepared.plan, prepared.synthesizer, prepared.request
-    sidecar = dict(prepared.sidecar)
+    sidecar = prepared.sidecar
     step = progress if progress is not None else (lambda samples: None)
     scale = 1.0
     if prepared.file_format in ("wav", "flac"):
         if request.full_scale_g is not None:
             scale = float(request.full_scale_g)
-            sidecar["full_scale"] = "given"
+            sidecar = dataclasses.replace(sidecar, full_scale_from="given")
         else:
             if plan.mode == "periodic":
                 peak = synthesizer.peak_abs()
@@ -340,8 +354,8 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
                     peak = max(peak, float(np.max(np.abs(chunk[:, 0]))))
                     step(len(chunk))
             scale = drivefile.full_scale_from_peak(peak)
-            sidecar["full_scale"] = "peak"
-            sidecar["headroom"] = drivefile.DEFAULT_HEADROOM
+            sidecar = dataclasses.replace(sidecar, full_scale_from="peak",
+                                          full_scale_headroom_fraction=drivefile.DEFAULT_HEADROOM)
     return drivefile.write_drive(
         request.output,
         synthesizer.iter_chunks(CHUNK_SAMPLES),
@@ -365,3 +379,533 @@ def usable_memory_bytes() -> float:
         return float(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES"))
     except (AttributeError, ValueError, OSError):
         return float(64 * 2**30)
+
+
+# ====================================================================== verify side
+#: Samples per chunk read from a drive file while verifying.
+READ_CHUNK_SAMPLES = 1 << 18
+
+#: Layout version of report.json (0.1 wrote an unversioned layout, counted as 1).
+REPORT_SCHEMA_VERSION = 2
+
+#: Figures a report folder holds, by key.
+FIGURE_NAMES = ("asd", "amplitude", "excerpt", "rms")
+
+
+def drive_criteria(drive, tolerance_db: tuple[float, float] = (-3.0, 3.0), grms_tolerance_percent: float = 10.0,
+                   min_fraction_within: float = 1.0) -> "Criteria":
+    """Verification criteria for a drive: the given limits plus the amplitude targets its sidecar records.
+
+    Parameters
+    ----------
+    drive : vibsynth.io.drivefile.DriveFile
+    tolerance_db : (float, float)
+        ASD tolerance band, dB (lower < 0 < upper).
+    grms_tolerance_percent : float
+        g RMS tolerance, %.
+    min_fraction_within : float
+        Fraction of judged lines that must lie in the band.
+
+    Returns
+    -------
+    vibsynth.analysis.verify.Criteria
+        With ``kurtosis_target``, ``skewness_target`` and ``crest_factor_limit``
+        from the sidecar's ``options`` (kurtosis, skewness, clip).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np
+    >>> from vibsynth.io.drivefile import write_drive, open_drive
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "d.npy"
+    >>> _ = write_drive(path, [np.zeros(4)], rate_hz=100.0, samples=4, sidecar={"options": {"clip": 3.0}})
+    >>> drive_criteria(open_drive(path)).crest_factor_limit
+    3.0
+
+    References
+    ----------
+    Pearson kurtosis and skewness; crest factor (peak / RMS).
+    """
+    from vibsynth.analysis.verify import Criteria
+
+    targets = drive.sidecar.amplitude_targets() if drive.sidecar is not None else {}
+    low, high = tolerance_db
+    return Criteria(
+        tolerance_low_db=low,
+        tolerance_high_db=high,
+        grms_tolerance_percent=grms_tolerance_percent,
+        min_fraction_within=min_fraction_within,
+        kurtosis_target=targets.get("kurtosis"),
+        skewness_target=targets.get("skewness"),
+        crest_factor_limit=targets.get("clip"),
+    )
+
+
+def drive_target(drive) -> "AsdProfile":
+    """The target recorded in a drive's sidecar (breakpoints in Hz and g^2/Hz).
+
+    Raises
+    ------
+    InputError
+        No sidecar profile, or one that cannot be read.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np
+    >>> from vibsynth.io.drivefile import write_drive, open_drive
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "d.npy"
+    >>> _ = write_drive(path, [np.zeros(4)], rate_hz=100.0, samples=4)
+    >>> drive_target(open_drive(path))
+    Traceback (most recent call last):
+    ...
+    vibsynth.errors.InputError: ...d.npy: has no sidecar with a profile; give the target with --profile PROFILE
+
+    References
+    ----------
+    See :meth:`vibsynth.io.sidecar.Sidecar.target_profile`.
+    """
+    if drive.sidecar is None:
+        raise InputError("has no sidecar with a profile; give the target with --profile PROFILE", str(drive.path))
+    return drive.sidecar.target_profile(str(drive.path))
+
+
+def verify_drive(drive, target, criteria, resolution_hz: float | None = None,
+                 dof: float | None = None) -> "Verification":
+    """Verify an open drive file against a target (streamed, two passes); errors name the file.
+
+    Parameters
+    ----------
+    drive : vibsynth.io.drivefile.DriveFile
+    target : AsdProfile
+        Target ASD, g^2/Hz.
+    criteria : vibsynth.analysis.verify.Criteria
+    resolution_hz : float, optional
+        Welch line spacing, Hz.
+    dof : float, optional
+        Degrees of freedom to aim at.
+
+    Returns
+    -------
+    vibsynth.analysis.verify.Verification
+        The ramps recorded in the sidecar are left out.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np
+    >>> from vibsynth.io.drivefile import write_drive, open_drive
+    >>> from vibsynth.profile.asd import AsdProfile
+    >>> rng = np.random.default_rng(0)
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "d.npy"
+    >>> _ = write_drive(path, [rng.standard_normal(40960) * 0.01], rate_hz=1024.0, samples=40960)
+    >>> target = AsdProfile([1.0, 500.0], [1e-7, 1e-7], name="flat")
+    >>> drive = open_drive(path)
+    >>> verify_drive(drive, target, drive_criteria(drive, (-6, 6), 50)).grms_measured > 0
+    True
+
+    References
+    ----------
+    Welch (1967); Bendat & Piersol, Random Data (4th ed., 2010), ch. 8.
+    """
+    from vibsynth.analysis.verify import verify_record
+
+    start, stop = drive.steady_range
+    try:
+        return verify_record(
+            lambda: drive.iter_chunks(READ_CHUNK_SAMPLES),
+            drive.rate_hz,
+            target,
+            criteria,
+            n_samples=drive.samples,
+            resolution_hz=resolution_hz,
+            target_dof=dof,
+            skip_start_samples=start,
+            skip_end_samples=drive.samples - stop,
+        )
+    except InputError as error:
+        if error.source:
+            raise
+        raise InputError(error.message, str(drive.path), error.location) from None
+
+
+def verification_data(result, drive, file_label: str) -> dict:
+    """The ``verify --json`` object: the verifier's contract keys, ``file``, and the sidecar's ``compensation``.
+
+    Examples
+    --------
+    >>> verification_data.__name__
+    'verification_data'
+
+    References
+    ----------
+    RFC 8259 (JSON); see :meth:`vibsynth.analysis.verify.Verification.to_dict`.
+    """
+    data = _json_safe(result.to_dict())
+    data["file"] = str(file_label)
+    compensation = drive.sidecar.compensation_summary() if drive.sidecar is not None else None
+    if compensation is not None:
+        data["compensation"] = _json_safe(compensation)
+    return data
+
+
+def write_verify_report(result, drive, folder, file_label: str, data: dict | None = None) -> dict:
+    """Write the figures, report.pdf and verify.json into ``folder`` (created), each atomically.
+
+    Returns
+    -------
+    dict
+        Paths by key (``asd``, ``amplitude``, ``excerpt``, ``rms``, ``pdf``, ``json``).
+
+    Examples
+    --------
+    >>> write_verify_report.__name__
+    'write_verify_report'
+
+    References
+    ----------
+    See :func:`vibsynth.analysis.figures.write_report_figures`, :mod:`vibsynth.io.atomic`.
+    """
+    from vibsynth.analysis.figures import write_report_figures
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    data = verification_data(result, drive, file_label) if data is None else data
+    paths = write_report_figures(result, folder, title=Path(file_label).name)
+    write_json_atomic(folder / "verify.json", data)
+    paths["json"] = str(folder / "verify.json")
+    return paths
+
+
+def _json_safe(value, empty_text=""):
+    """NaN/inf -> None (RFC 8259 has neither); with ``empty_text=None``, empty strings -> None too."""
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _json_safe(v, empty_text) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_json_safe(v, empty_text) for v in value]
+    if value == "" and isinstance(value, str):
+        return empty_text
+    return value
+
+
+# ====================================================================== the run job
+def default_run_folder(profile_name: str) -> Path:
+    """The default folder of a run: ``vibsynth-run-NAME`` (NAME reduced to safe characters).
+
+    Examples
+    --------
+    >>> default_run_folder("bench flat").name
+    'vibsynth-run-bench-flat'
+
+    References
+    ----------
+    POSIX portable file name character set.
+    """
+    safe = re.sub(r"[^A-Za-z0-9._-]+", "-", profile_name).strip("-") or "profile"
+    return Path(f"vibsynth-run-{safe}")
+
+
+@dataclass(frozen=True)
+class RunRequest:
+    """A whole run: the drive to make, how to judge it, and the folder for everything.
+
+    Parameters
+    ----------
+    folder : str or os.PathLike
+        Output folder (created if needed).
+    file_format : {"flac", "wav", "csv", "npy"}
+        Format of ``drive.FORMAT``.
+    drive : DriveRequest
+        The drive options (its ``output`` is ignored: the drive goes to the folder).
+    tolerance_db : (float, float)
+        ASD tolerance band, dB.
+    grms_tolerance_percent : float
+        g RMS tolerance, %.
+    min_fraction_within : float
+        Fraction of judged lines that must lie in the band.
+    resolution_hz : float or None
+        Welch line spacing, Hz.
+    dof : float or None
+        Degrees of freedom to aim at.
+    """
+
+    folder: str
+    drive: DriveRequest
+    file_format: str = "flac"
+    tolerance_db: tuple = (-3.0, 3.0)
+    grms_tolerance_percent: float = 10.0
+    min_fraction_within: float = 1.0
+    resolution_hz: float | None = None
+    dof: float | None = None
+
+
+@dataclass(frozen=True)
+class RunResult:
+    """What a run made: the files, the verification, the report and every warning.
+
+    Attributes
+    ----------
+    folder : pathlib.Path
+    drive_path : pathlib.Path
+    prepared : PreparedDrive
+    written : dict
+        The drive's sidecar as written.
+    verification : vibsynth.analysis.verify.Verification
+    report : dict
+        report.json as written.
+    files : tuple of str
+        Names of the files in the folder.
+    warnings : tuple of str
+        Every warning of the run, in order (also issued as :class:`VibsynthWarning`).
+    """
+
+    folder: Path
+    drive_path: Path
+    prepared: PreparedDrive
+    written: dict
+    verification: "Verification"
+    report: dict
+    files: tuple
+    warnings: tuple
+
+    @property
+    def passed(self) -> bool:
+        """True when the drive passed verification."""
+        return bool(self.verification.passed)
+
+
+def _sha256(path: Path) -> str:
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def run_report(result_files: dict, folder: Path, drive_path: Path, profile: "AsdProfile", profile_source: str | None,
+               written: dict, verification: "Verification", run_warnings) -> dict:
+    """The report.json object of a run (schema ``report.schema.json``, version :data:`REPORT_SCHEMA_VERSION`).
+
+    Paths are relative to the folder; the drive and its sidecar carry SHA-256
+    digests.  The ``verification`` block is the ``verify --json`` contract.
+
+    Examples
+    --------
+    >>> run_report.__name__
+    'run_report'
+
+    References
+    ----------
+    FIPS 180-4 (SHA-256); ISO 8601 (time); RFC 8259 (JSON).
+    """
+    side = drivefile.sidecar_path(drive_path)
+    plan = written.get("plan") or {}
+    options = written.get("options") or {}
+    return {
+        "schema_version": REPORT_SCHEMA_VERSION,
+        "tool": {"name": "vibsynth", "version": __version__},
+        "created_utc": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
+        "drive": {"path": drive_path.name, "sha256": _sha256(drive_path)},
+        "sidecar": {"path": side.name, "sha256": _sha256(side)},
+        "profile": {"path": "profile.toml", **profile_block(profile, profile_source)},
+        "generation": {
+            "seed": written.get("seed"),
+            "mode": plan.get("mode"),
+            "frame_length_samples": plan.get("frame_length_samples"),
+            "line_spacing_hz": plan.get("line_spacing_hz"),
+            "amplitude": options.get("amplitude"),
+            "rate_hz": written.get("rate"),
+            "samples": written.get("samples"),
+            "duration_s": written.get("duration_s"),
+            "scale_g": written.get("scale"),
+            "peak_g": written.get("peak_g"),
+        },
+        "verification": _json_safe(verification.to_dict(), empty_text=None),
+        "figures": {name: Path(path).name for name, path in result_files.items()},
+        "warnings": list(run_warnings),
+        "caution": DRIVE_CAUTION,
+    }
+
+
+@dataclass(frozen=True)
+class PreparedRun:
+    """A checked run, its drive planned, nothing written yet but the (possibly new) folder.
+
+    Attributes
+    ----------
+    request : RunRequest
+    profile : AsdProfile
+    folder, drive_path : pathlib.Path
+    prepared : PreparedDrive
+    warnings : tuple of str
+        Warnings of the planning (each also issued as a :class:`~vibsynth.errors.VibsynthWarning`).
+    """
+
+    request: RunRequest
+    profile: "AsdProfile"
+    folder: Path
+    drive_path: Path
+    prepared: PreparedDrive
+    warnings: tuple
+
+
+def prepare_run(profile: "AsdProfile", request: RunRequest) -> PreparedRun:
+    """Check a run and plan its drive; creates the folder (removed again if the request is refused).
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        Target ASD (g^2/Hz), already rescaled as asked.
+    request : RunRequest
+
+    Returns
+    -------
+    PreparedRun
+
+    Raises
+    ------
+    InputError
+        A request that cannot be carried out (nothing is left behind).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> from vibsynth.profile.files import read_profile
+    >>> folder = pathlib.Path(tempfile.mkdtemp()) / "run"
+    >>> drive = DriveRequest(output="", duration_s=4.0, rate_hz=5120.0, seed=1)
+    >>> prepare_run(read_profile("bench-flat"), RunRequest(str(folder), drive, "npy")).drive_path.name
+    'drive.npy'
+
+    References
+    ----------
+    See :func:`prepare_drive`.
+    """
+    folder = Path(request.folder)
+    if folder.exists() and not folder.is_dir():
+        raise InputError("exists and is not a folder; give another output folder", str(folder))
+    drive_path = folder / f"drive.{drivefile.drive_format('drive.' + request.file_format)}"
+    drive_request = dataclasses.replace(request.drive, output=str(drive_path))
+    folder_created = not folder.exists()
+    folder.mkdir(parents=True, exist_ok=True)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", VibsynthWarning)
+        try:
+            prepared = prepare_drive(profile, drive_request)
+        except BaseException:
+            if folder_created and not any(folder.iterdir()):
+                folder.rmdir()
+            raise
+    collected = _merge_warnings(list(prepared.warnings), caught)
+    for message in collected:
+        warnings.warn(message, VibsynthWarning, stacklevel=2)
+    return PreparedRun(request=request, profile=profile, folder=folder, drive_path=drive_path, prepared=prepared,
+                       warnings=tuple(collected))
+
+
+def _merge_warnings(collected: list, caught) -> list:
+    """Add the VibsynthWarning messages of ``caught`` not yet in ``collected``; pass other warnings on as they came."""
+    for item in caught:
+        if issubclass(item.category, VibsynthWarning):
+            if str(item.message) not in collected:
+                collected.append(str(item.message))
+        else:  # anything else (numpy, matplotlib) goes on as it came
+            warnings.warn_explicit(item.message, item.category, item.filename, item.lineno)
+    return collected
+
+
+def complete_run(run: PreparedRun, progress: Callable[[int], None] | None = None) -> RunResult:
+    """Write the drive of a prepared run, verify it, and write the rest of the folder.
+
+    Writes ``drive.FORMAT`` and its sidecar, the target (``profile.toml``),
+    the figures (``asd.png``, ``amplitude.png``, ``excerpt.png``, ``rms.png``),
+    ``report.pdf`` and ``report.json``, each atomically.
+
+    Parameters
+    ----------
+    run : PreparedRun
+    progress : callable, optional
+        Called with a sample count after each chunk written.
+
+    Returns
+    -------
+    RunResult
+        With every warning of the run (planning included); those after the
+        planning are issued here as :class:`~vibsynth.errors.VibsynthWarning`.
+
+    Examples
+    --------
+    >>> complete_run.__name__
+    'complete_run'
+
+    References
+    ----------
+    See :func:`verify_drive` and :func:`vibsynth.analysis.figures.write_report_figures`.
+    """
+    from vibsynth.analysis.figures import write_report_figures
+    from vibsynth.profile.files import write_profile
+
+    request, profile, folder, drive_path = run.request, run.profile, run.folder, run.drive_path
+    collected = list(run.warnings)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", VibsynthWarning)
+        written = write_prepared_drive(run.prepared, progress)
+        drive = drivefile.open_drive(drive_path)
+        criteria = drive_criteria(drive, request.tolerance_db, request.grms_tolerance_percent,
+                                  request.min_fraction_within)
+        verification = verify_drive(drive, profile, criteria, request.resolution_hz, request.dof)
+        write_profile(profile, folder / "profile.toml")
+        figures = write_report_figures(verification, folder, title=f"{drive_path.name} ({profile.name})")
+    _merge_warnings(collected, caught)
+    if verification.segment_message and verification.segment_message not in collected:
+        collected.append(verification.segment_message)
+    if not verification.passed:
+        collected.append("the drive did NOT pass verification; see report.pdf before using it")
+    report = run_report(figures, folder, drive_path, profile, run.prepared.request.profile_source or None, written,
+                        verification, collected)
+    write_json_atomic(folder / "report.json", report)
+    for message in collected[len(run.warnings):]:  # those of the planning were issued by prepare_run
+        warnings.warn(message, VibsynthWarning, stacklevel=2)
+    files = (drive_path.name, drivefile.sidecar_path(drive_path).name, "profile.toml", "report.json", "report.pdf",
+             *(f"{name}.png" for name in FIGURE_NAMES))
+    return RunResult(folder=folder, drive_path=drive_path, prepared=run.prepared, written=written,
+                     verification=verification, report=report, files=files, warnings=tuple(collected))
+
+
+def run_job(profile: "AsdProfile", request: RunRequest, progress: Callable[[int], None] | None = None) -> RunResult:
+    """Generate a drive, verify it, and write everything into one folder (:func:`prepare_run` + :func:`complete_run`).
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        Target ASD (g^2/Hz), already rescaled as asked.
+    request : RunRequest
+    progress : callable, optional
+        Called with a sample count after each chunk written.
+
+    Returns
+    -------
+    RunResult
+        With every warning of the run (each also issued as a :class:`~vibsynth.errors.VibsynthWarning`).
+
+    Raises
+    ------
+    InputError
+        A request that cannot be carried out (nothing is written).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, warnings
+    >>> from vibsynth.profile.files import read_profile
+    >>> folder = pathlib.Path(tempfile.mkdtemp()) / "run"
+    >>> drive = DriveRequest(output="", duration_s=10.0, rate_hz=5120.0, seed=1)
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")
+    ...     result = run_job(read_profile("bench-flat"), RunRequest(str(folder), drive, "npy", (-6.0, 6.0)))
+    >>> sorted(result.files)[:3]
+    ['amplitude.png', 'asd.png', 'drive.npy']
+
+    References
+    ----------
+    See :func:`prepare_drive`, :func:`verify_drive` and
+    :func:`vibsynth.analysis.figures.write_report_figures`.
+    """
+    return complete_run(prepare_run(profile, request), progress)

@@ -153,7 +153,7 @@ def _check_three_ways(tmp_path, monkeypatch, profile_path, fresh, name, options,
     default_chunks = _in_process(_argv(profile_path, default, options), monkeypatch, None)
     odd_chunks = _in_process(_argv(profile_path, odd, options), monkeypatch, ODD_CHUNK)
     side = json.loads(sidecar_path(default).read_text())
-    assert side["mode"] == mode
+    assert side["plan"]["mode"] == mode
     # The two in-process runs really were cut differently.
     assert max(odd_chunks) == ODD_CHUNK and max(default_chunks) > ODD_CHUNK
     assert sum(odd_chunks) == sum(default_chunks) == side["samples"]

@@ -59,8 +59,9 @@ def test_generate_writes_file_sidecar_summary_and_caution(tmp_path, profile_path
     assert "wrote" in out and "g RMS" in out and "mm peak-to-peak" in out and "m/s RMS" in out
     side = json.loads(sidecar_path(out_path).read_text())
     for key in ("unit", "scale", "rate", "seed", "samples", "duration_s", "format", "subtype", "options", "profile",
-                "tool", "ramp_in_s", "ramp_out_s", "mode", "frame_length", "amplitude"):
+                "tool", "ramp_in_s", "ramp_out_s", "plan", "schema_version"):
         assert key in side, key
+    assert "mode" in side["plan"] and "frame_length_samples" in side["plan"] and "amplitude" in side["options"]
     assert side["unit"] == "g" and side["rate"] == 5120 and side["seed"] == 4 and side["samples"] == 20 * 5120
     assert side["tool"]["name"] == "vibsynth"
     profile = read_profile(profile_path)
@@ -101,7 +102,7 @@ def test_csv_quantities_are_consistent_columns(tmp_path, profile_path, capsys):
     assert np.sqrt(np.mean(displacement**2)) == pytest.approx(profile.displacement_rms_m, rel=0.02)
     side = json.loads(sidecar_path(path).read_text())
     assert side["columns"] == ["time_s", "acceleration_g", "velocity_m_s", "displacement_m"]
-    assert side["mode"] == "periodic"
+    assert side["plan"]["mode"] == "periodic"
 
 
 def test_loop_and_ramp_are_recorded(tmp_path, profile_path, capsys):
@@ -109,7 +110,8 @@ def test_loop_and_ramp_are_recorded(tmp_path, profile_path, capsys):
                         "--seed", 1, "--loop")
     assert status == 0
     side = json.loads(sidecar_path(tmp_path / "loop.flac").read_text())
-    assert side["loop"] is True and side["mode"] == "periodic" and side["frame_length"] == 8 * 5120
+    assert side["options"]["loop"] is True and side["plan"]["mode"] == "periodic"
+    assert side["plan"]["frame_length_samples"] == 8 * 5120
     status, _, _ = _run(capsys, profile_path, "-o", tmp_path / "ramp.npy", "--duration", 8, "--rate", 5120,
                         "--seed", 1, "--ramp", 1.5)
     assert status == 0
@@ -164,7 +166,7 @@ def test_written_drive_matches_target_through_scipy_welch(tmp_path, profile_path
     status, _, _ = _run(capsys, profile_path, "-o", path, "--duration", 400, "--rate", 5120, "--seed", 3,
                         "--memory-budget", 8)
     assert status == 0
-    assert json.loads(sidecar_path(path).read_text())["mode"] == "overlap-add"
+    assert json.loads(sidecar_path(path).read_text())["plan"]["mode"] == "overlap-add"
     record = open_drive(path).read()
     profile = read_profile(profile_path)
     frequencies, estimate = scipy.signal.welch(record, 5120, nperseg=4096)  # reference estimator
@@ -276,7 +278,7 @@ def test_given_full_scale_is_recorded_exactly(tmp_path, profile_path, capsys):
                         "--subtype", "pcm16", "--full-scale", 50)
     assert status == 0
     side = json.loads(sidecar_path(path).read_text())
-    assert side["scale"] == 50.0 and side["full_scale"] == "given" and side["subtype"] == "pcm16"
+    assert side["scale"] == 50.0 and side["full_scale_from"] == "given" and side["subtype"] == "pcm16"
     raw, _ = soundfile.read(path, dtype="float64")
     np.testing.assert_array_equal(raw * 50.0, open_drive(path).read())
     assert np.max(np.abs(raw)) < 1.0

@@ -173,6 +173,6 @@ def test_gaussian_drive_sidecar_has_no_transform(tmp_path, gentle, capsys):
     status, _, err = _generate(capsys, gentle, "-o", drive, "--duration", 10, "--rate", RATE, "--seed", 1)
     assert status == 0, err
     side = json.loads(sidecar_path(drive).read_text())
-    assert "transform" not in side and side["options"]["kurtosis"] is None
+    assert side["transform"] is None and side["options"]["kurtosis"] is None
     status, report, _ = _verify_json(capsys, drive)
     assert "compensation" not in report and "kurtosis" not in report["rule"]

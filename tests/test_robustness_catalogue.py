@@ -344,7 +344,7 @@ CASES = [
     Case("verify-sidecar-ramps-too-long", ("verify", "{work}/drive.npy"),
          ("{work}/drive.npy.json", "ramp", "longer than the 4 s record"), _sidecar_ramps_too_long),
     Case("verify-sidecar-profile-garbled", ("verify", "{work}/drive.npy"),
-         ("{work}/drive.npy.json", "profile.breakpoints must be a list of {frequency, asd}"), _sidecar_bad_profile),
+         ("{work}/drive.npy.json", "profile.breakpoints must be a list of {frequency_hz, asd_g2_per_hz}"), _sidecar_bad_profile),
     Case("verify-pickled-object-npy", ("verify", "{work}/trap.npy", "--rate", RATE, "--profile", "{profile}"),
          ("{work}/trap.npy", "holds object", "floats of shape (n,)"), _pickled_npy),
     Case("verify-npy-three-columns-no-sidecar", ("verify", "{work}/three.npy", "--rate", RATE, "--profile", "{profile}"),

@@ -19,6 +19,7 @@ from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.figure import Figure
 
 from vibsynth.errors import InputError
+from vibsynth.io.atomic import AtomicFile, commit_all
 from vibsynth.analysis.verify import Verification
 
 PAPER = "#fbf8f1"
@@ -388,26 +389,20 @@ def write_report_figures(result: Verification, folder: str | os.PathLike, title:
     }
     figures = {name: build(result, title) for name, build in builders.items()}
     written = {}
-    temporaries = []
+    pending = []
     try:
         for name, figure in figures.items():
-            path = folder / f"{name}.png"
-            temporary = folder / f".{name}.png.partial-{os.getpid()}"
-            temporaries.append(temporary)
-            figure.savefig(temporary, format="png", facecolor=PAPER)
-            written[name] = (temporary, path)
-        pdf_path = folder / "report.pdf"
-        pdf_temporary = folder / f".report.pdf.partial-{os.getpid()}"
-        temporaries.append(pdf_temporary)
-        with PdfPages(pdf_temporary) as pdf:
+            pending.append(AtomicFile(folder / f"{name}.png"))
+            figure.savefig(pending[-1].temporary, format="png", facecolor=PAPER)
+            written[name] = pending[-1]
+        pending.append(AtomicFile(folder / "report.pdf"))
+        with PdfPages(pending[-1].temporary) as pdf:
             pdf.savefig(summary_figure(result, title, extra_lines), facecolor=PAPER)
             for figure in figures.values():
                 pdf.savefig(figure, facecolor=PAPER)
-        written["pdf"] = (pdf_temporary, pdf_path)
-        for temporary, path in written.values():
-            os.replace(temporary, path)
+        written["pdf"] = pending[-1]
+        commit_all(written.values())
     finally:
-        for temporary in temporaries:
-            if temporary.exists():
-                temporary.unlink()
-    return {name: str(path) for name, (_, path) in written.items()}
+        for file in pending:
+            file.discard()
+    return {name: str(file.destination) for name, file in written.items()}

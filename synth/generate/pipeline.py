@@ -95,8 +95,8 @@ from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
 #: ``rayleigh`` (complex Gaussian lines; a true Gaussian realisation).
 AMPLITUDE_MODES = ("fixed", "rayleigh")
 
-#: The quantities a record can hold, and their units.
-QUANTITY_UNITS = {"acceleration": "g", "velocity": "m/s", "displacement": "m"}
+#: The quantities a record can hold, and their units (one table, in vibsynth.io.quantities).
+from vibsynth.io.quantities import QUANTITY_UNITS  # noqa: E402
 
 #: Generation modes (see the module docstring).
 MODES = ("periodic", "overlap-add")

@@ -1,112 +1,68 @@
-"""Drive files: streaming, atomic writers for .wav/.flac/.csv/.npy, their JSON sidecar, and a chunked reader.
+"""Drive files: the streaming, atomic writer and the chunked reader over the four formats.
 
-Formats (chosen by the file's suffix)
--------------------------------------
-``.wav``
-    Mono; ``float`` (32-bit float, default), ``pcm24`` or ``pcm16``.
-``.flac``
-    Mono; ``pcm24`` (default) or ``pcm16``.
-``.csv``
+Formats (chosen by the file's suffix), one module each
+-------------------------------------------------------
+``.wav``/``.flac`` (:mod:`vibsynth.io.wavflac`)
+    Mono; .wav ``float`` (32-bit float, default), ``pcm24`` or ``pcm16``;
+    .flac ``pcm24`` (default) or ``pcm16``.  Normalised samples: physical
+    value = sample x ``scale`` (g, in the sidecar); never clipped.
+``.csv`` (:mod:`vibsynth.io.csvtable`)
     Header row, then ``time_s`` and one column per quantity
-    (``acceleration_g`` and optionally ``velocity_m_s``, ``displacement_m``);
-    time with 9 decimals, values with 9 significant digits.
-``.npy``
+    (``acceleration_g`` and optionally ``velocity_m_s``, ``displacement_m``).
+``.npy`` (:mod:`vibsynth.io.npyarray`)
     float64, shape (n,) for acceleration alone or (n, q) with columns as in
     the sidecar's ``columns`` (no time column).
 
-Scale
------
-``.wav``/``.flac`` hold normalised samples: a reader that maps full scale to
-1.0 (PCM counts divided by 2^(bits-1); floats as stored) gets ``sample`` and
-the physical value is ``sample x scale``, with ``scale`` (g) in the sidecar.
-The writer converts to integer counts itself (``round(x / scale 2^(bits-1))``),
-so ``scale`` is exact and a value that would not fit (a count beyond
-``2^(bits-1) - 1``, or a float sample beyond 1) is refused, never clipped.
-``.csv``/``.npy`` hold values in their physical units; ``scale`` is 1.
-
 Atomic writing
 --------------
-Data and sidecar are written to hidden temporary names in the destination
-folder (``.NAME.PID.partial``) and renamed over the destination only when
-complete, data first, sidecar last (an older sidecar is removed just before
-the data is renamed, so an old sidecar never describes a new file).  A run
-that stops with an exception removes its temporary files; a killed run
-leaves the destination as it was (and at most a ``.partial`` file).  The next
-write to the same destination removes such stale partial files: those whose
-writing process no longer runs on this machine and that have not changed for
-:data:`STALE_PARTIAL_AGE_S` seconds (a writer on another machine sharing the
-folder keeps its file changing).  Killed between the two renames of the
-commit (a few microseconds), a run leaves the old data without a sidecar, or
-the new data without one; never a sidecar describing the other file.
+Data and sidecar are written through :mod:`vibsynth.io.atomic` (hidden
+temporary names ``.NAME.PID.partial`` in the destination folder, renamed into
+place when complete), data first, sidecar last (an older sidecar is removed
+just before the data is renamed, so an old sidecar never describes a new
+file).  A run that stops with an exception removes its temporary files; a
+killed run leaves the destination as it was (and at most a ``.partial``
+file), which the next write to the same destination removes once stale.
+Killed between the two renames of the commit (a few microseconds), a run
+leaves the old data without a sidecar, or the new data without one; never a
+sidecar describing the other file.
 
-The sidecar is ``FILE + ".json"``.  :func:`open_drive` reads any of the four
-formats back in chunks in constant memory, checking the sidecar against the
-file; it does not use the generator.
+The sidecar is ``FILE + ".json"`` (:class:`vibsynth.io.sidecar.Sidecar`).
+:func:`open_drive` reads any of the four formats back in chunks in constant
+memory, checking the sidecar against the file; it does not use the generator.
 
 References
 ----------
-Microsoft/IBM RIFF WAVE format (PCM and IEEE float data); FLAC format
-specification (xiph.org); NumPy ``.npy`` format (NEP 1); RFC 4180 (CSV);
-RFC 8259 (JSON).
+Microsoft/IBM RIFF WAVE format; FLAC format specification (xiph.org); NumPy
+``.npy`` format (NEP 1); RFC 4180 (CSV); RFC 8259 (JSON).
 """
 
 from __future__ import annotations
 
-import io
-import itertools
-import json
+import dataclasses
 import math
 import os
-import re
 import shutil
-import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Iterator
 
 import numpy as np
-import soundfile
 
-from vibsynth import __version__
 from vibsynth.errors import InputError
+from vibsynth.io import atomic, csvtable, npyarray, wavflac
+from vibsynth.io.atomic import STALE_PARTIAL_AGE_S
+from vibsynth.io.quantities import COLUMN_NAMES, QUANTITY_UNITS
+from vibsynth.io.sidecar import Sidecar, sidecar_path
 
 #: File formats by suffix.
 FORMATS = ("wav", "flac", "csv", "npy")
 
 #: Sample formats per file format; the first is the default.
-SUBTYPES = {
-    "wav": ("float", "pcm24", "pcm16"),
-    "flac": ("pcm24", "pcm16"),
-    "csv": ("text",),
-    "npy": ("float64",),
-}
-
-#: Column name (with unit) of each quantity in csv headers and sidecars.
-COLUMN_NAMES = {"acceleration": "acceleration_g", "velocity": "velocity_m_s", "displacement": "displacement_m"}
-#: Unit of each quantity.
-QUANTITY_UNITS = {"acceleration": "g", "velocity": "m/s", "displacement": "m"}
+SUBTYPES = {**wavflac.SUBTYPES, "csv": csvtable.SUBTYPES, "npy": npyarray.SUBTYPES}
 
 #: Headroom above the record's peak when full scale is set from the peak (0.1 %).
 DEFAULT_HEADROOM = 1e-3
 
-#: Version of the sidecar layout.
-SIDECAR_VERSION = 1
-
-_PCM_BITS = {"pcm24": 24, "pcm16": 16}
-_SOUNDFILE_SUBTYPE = {"float": "FLOAT", "pcm24": "PCM_24", "pcm16": "PCM_16"}
-_BYTES_PER_SAMPLE = {"float": 4, "pcm24": 3, "pcm16": 2}
-_WAV_MAX_DATA_BYTES = 2**32 - 1 - 4096  # RIFF size field is 32 bits; keep room for the header
-_CSV_TIME_FORMAT = "%.9f"
-_CSV_VALUE_FORMAT = "%.9g"
-#: Longest text of one value written with _CSV_VALUE_FORMAT: sign, 9 digits, point, "e-" and 3 exponent digits.
-_CSV_VALUE_MAX_CHARS = 16
-#: FLAC bound: per-frame overhead (frame header <= 16 bytes, subframe header, byte padding, CRC-16) and the
-#: smallest block size libFLAC uses at any compression level (1152 samples), plus room for metadata blocks.
-_FLAC_FRAME_OVERHEAD_BYTES = 20
-_FLAC_MIN_BLOCK_SAMPLES = 1152
-_FLAC_METADATA_BYTES = 64 * 1024
-#: A partial file of a process that no longer runs, unchanged for this long (s), is removed as stale.
-STALE_PARTIAL_AGE_S = 60.0
 #: Room kept for the JSON sidecar (a few kB in practice).
 SIDECAR_ALLOWANCE_BYTES = 64 * 1024
 
@@ -139,11 +95,6 @@ def drive_format(path) -> str:
         )
     return suffix
 
-
-def sidecar_path(path) -> Path:
-    """The sidecar of a drive file: the file's name plus ``.json`` (``drive.flac`` -> ``drive.flac.json``)."""
-    path = Path(path)
-    return path.with_name(path.name + ".json")
 
 
 def check_subtype(file_format: str, subtype: str | None) -> str:
@@ -183,19 +134,6 @@ def full_scale_from_peak(peak: float, headroom: float = DEFAULT_HEADROOM) -> flo
 
 
 # ----------------------------------------------------------------- writing
-def _partial_name(path: Path, tag: str = "") -> Path:
-    for attempt in itertools.count():
-        extra = f".{attempt}" if attempt else ""
-        candidate = path.with_name(f".{path.name}{tag}.{os.getpid()}{extra}.partial")
-        try:
-            descriptor = os.open(candidate, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o666)
-        except FileExistsError:
-            continue
-        os.close(descriptor)
-        return candidate
-    raise AssertionError("unreachable")  # pragma: no cover
-
-
 def _format_bytes(count: int) -> str:
     for unit, size in (("TB", 10**12), ("GB", 10**9), ("MB", 10**6), ("kB", 10**3)):
         if count >= size:
@@ -224,41 +162,21 @@ def estimate_file_bytes(file_format: str, subtype: str, samples: int, quantities
     (int, bool)
         Bytes, and whether the figure is exact (False: an upper bound).
 
-    Notes
-    -----
-    .wav: the header libsndfile writes (measured by writing an empty file in
-    memory) plus the sample bytes, padded to an even length (RIFF chunks are
-    word aligned).  .npy: the NEP 1 header plus 8 bytes per value.  .flac:
-    the size of verbatim (uncompressed) subframes, which the encoder never
-    exceeds since verbatim is always one of its candidates, plus frame
-    overhead and metadata.  .csv: the widest row the format strings can give.
+    Examples
+    --------
+    >>> estimate_file_bytes("npy", "float64", 10)
+    (208, True)
 
     References
     ----------
     Microsoft/IBM RIFF WAVE format; NumPy NEP 1 (.npy format); FLAC format
     specification (xiph.org), verbatim subframes and frame header layout.
     """
-    count = int(samples)
-    columns = len(tuple(quantities))
     if file_format == "npy":
-        buffer = io.BytesIO()
-        shape = (count,) if columns == 1 else (count, columns)
-        np.lib.format.write_array_header_1_0(buffer, {"descr": "<f8", "fortran_order": False, "shape": shape})
-        return buffer.tell() + 8 * count * columns, True
-    if file_format == "wav":
-        buffer = io.BytesIO()
-        with soundfile.SoundFile(buffer, mode="w", samplerate=8000, channels=1, format="WAV",
-                                 subtype=_SOUNDFILE_SUBTYPE[subtype]):
-            pass
-        data = count * _BYTES_PER_SAMPLE[subtype]
-        return len(buffer.getvalue()) + data + data % 2, True
-    if file_format == "flac":
-        frames = -(-count // _FLAC_MIN_BLOCK_SAMPLES)
-        return (count * _BYTES_PER_SAMPLE[subtype] + frames * _FLAC_FRAME_OVERHEAD_BYTES
-                + _FLAC_METADATA_BYTES), False
-    last_time = len(_CSV_TIME_FORMAT % (max(count - 1, 0) / float(rate_hz)))
-    header = len("time_s") + sum(1 + len(COLUMN_NAMES.get(q, q)) for q in quantities) + 1
-    return header + count * (last_time + columns * (1 + _CSV_VALUE_MAX_CHARS) + 1), False
+        return npyarray.estimate_bytes(samples, len(tuple(quantities)))
+    if file_format in ("wav", "flac"):
+        return wavflac.estimate_bytes(file_format, subtype, samples)
+    return csvtable.estimate_bytes(samples, quantities, rate_hz)
 
 
 def check_free_space(path, needed_bytes: int, exact: bool = True) -> None:
@@ -299,18 +217,8 @@ def check_free_space(path, needed_bytes: int, exact: bool = True) -> None:
         )
 
 
-def _process_runs(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)  # signal 0: existence and permission check only (POSIX)
-    except ProcessLookupError:
-        return False
-    except (OSError, OverflowError):  # not ours to signal, or cannot tell: treat as running
-        return True
-    return True
-
-
 def remove_stale_partials(path, min_age_s: float = STALE_PARTIAL_AGE_S) -> list:
-    """Remove the temporary files a killed writer left for this destination (see "Atomic writing").
+    """Remove the temporary files a killed writer left for a drive file and its sidecar.
 
     Parameters
     ----------
@@ -322,34 +230,20 @@ def remove_stale_partials(path, min_age_s: float = STALE_PARTIAL_AGE_S) -> list:
     Returns
     -------
     list of pathlib.Path
-        The files removed (none on systems other than POSIX).
+        The files removed.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> remove_stale_partials(pathlib.Path(tempfile.mkdtemp()) / "drive.npy")
+    []
 
     References
     ----------
-    POSIX kill(2) with signal 0 (process existence check).
+    See :func:`vibsynth.io.atomic.remove_stale_partials`.
     """
-    path = Path(path)
-    if os.name != "posix":
-        return []
-    pattern = re.compile(rf"\.{re.escape(path.name)}(?:\.json)?\.(\d+)(?:\.\d+)?\.partial")
-    removed = []
-    try:
-        entries = list(os.scandir(path.parent))
-    except OSError:
-        return removed
-    now = time.time()
-    for entry in entries:
-        match = pattern.fullmatch(entry.name)
-        if not match or int(match.group(1)) == os.getpid() or _process_runs(int(match.group(1))):
-            continue
-        try:
-            if not entry.is_file(follow_symlinks=False) or now - entry.stat(follow_symlinks=False).st_mtime < min_age_s:
-                continue
-            os.unlink(entry.path)
-        except OSError:
-            continue
-        removed.append(Path(entry.path))
-    return removed
+    return (atomic.remove_stale_partials(path, min_age_s)
+            + atomic.remove_stale_partials(sidecar_path(path), min_age_s))
 
 
 def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
@@ -374,6 +268,12 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
         or a folder without the disk space the file needs (see
         :func:`estimate_file_bytes`).
 
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> check_drive_request(pathlib.Path(tempfile.mkdtemp()) / "d.flac", rate_hz=5120, samples=10)["subtype"]
+    'pcm24'
+
     References
     ----------
     RIFF WAVE (32-bit chunk sizes), FLAC format specification.
@@ -394,9 +294,9 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
     rate = float(rate_hz)
     if not (math.isfinite(rate) and rate > 0):
         raise InputError(f"rate {rate_hz!r} Hz must be a finite number > 0", "rate")
-    if file_format in ("wav", "flac") and rate != round(rate):
-        raise InputError(f".{file_format} files store whole-number rates; {rate:g} Hz is not one", "rate")
     count = int(samples)
+    if file_format in ("wav", "flac"):
+        wavflac.check_request(path, file_format, subtype, rate, max(count, 0))
     if count < 1:
         raise InputError(f"sample count {samples!r} must be >= 1", "samples")
     scale = float(scale)
@@ -404,13 +304,6 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
         raise InputError(f"scale {scale!r} must be a finite number > 0", "scale")
     if file_format in ("csv", "npy") and scale != 1.0:
         raise InputError(f".{file_format} files hold physical values; scale must be 1, not {scale:g}", "scale")
-    if file_format == "wav" and count * _BYTES_PER_SAMPLE[subtype] > _WAV_MAX_DATA_BYTES:
-        longest = _WAV_MAX_DATA_BYTES // _BYTES_PER_SAMPLE[subtype] / rate
-        raise InputError(
-            f"a .wav file holds at most {longest:.0f} s of {subtype} samples at {rate:g} Hz (4 GB limit); "
-            "use .flac or .npy",
-            str(path),
-        )
     if not path.parent.is_dir():
         raise InputError(f"folder {str(path.parent)!r} does not exist; create it first", str(path))
     if path.is_dir():
@@ -439,10 +332,11 @@ class DriveWriter:
     scale : float
         .wav/.flac: g value of sample 1.0 (e.g. from :func:`full_scale_from_peak`).
         .csv/.npy: must be 1.0 (values are written in physical units).
-    sidecar : dict, optional
-        Extra sidecar keys (seed, options, profile, ...); the writer adds
-        ``unit``, ``scale``, ``rate``, ``samples``, ``duration_s``, ``format``,
-        ``subtype``, ``columns``, ``units``, ``sidecar_version`` and ``tool``.
+    sidecar : Sidecar or dict, optional
+        What the caller records (seed, options, plan, profile, ...; a dict
+        gives :class:`~vibsynth.io.sidecar.Sidecar` fields); the writer fills
+        in ``scale``, ``rate``, ``samples``, ``format``, ``subtype``,
+        ``columns``, ``units``, ``peak_g`` and ``tool``.
 
     Notes
     -----
@@ -450,13 +344,23 @@ class DriveWriter:
     temporary files; call :meth:`commit` to publish.  Values are physical
     (g, m/s, m), float arrays of shape (m,) or (m, q).
 
+    Examples
+    --------
+    >>> import tempfile, pathlib, numpy as np
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "d.npy"
+    >>> with DriveWriter(path, rate_hz=100.0, samples=3) as writer:
+    ...     writer.write(np.array([0.1, -0.2, 0.3]))
+    ...     written = writer.commit()
+    >>> written["samples"], written["peak_g"]
+    (3, 0.3)
+
     References
     ----------
     See the module docstring.
     """
 
     def __init__(self, path, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
-                 scale: float = 1.0, sidecar: dict | None = None):
+                 scale: float = 1.0, sidecar: "Sidecar | dict | None" = None):
         request = check_drive_request(path, rate_hz=rate_hz, samples=samples, quantities=quantities,
                                       subtype=subtype, scale=scale)
         self.path = Path(path)
@@ -466,44 +370,35 @@ class DriveWriter:
         self.rate_hz = request["rate_hz"]
         self.samples = request["samples"]
         self.scale = request["scale"]
-        self.extra = dict(sidecar or {})
+        if sidecar is None:
+            sidecar = Sidecar()
+        elif isinstance(sidecar, dict):
+            unknown = sorted(set(sidecar) - {f.name for f in dataclasses.fields(Sidecar)})
+            if unknown:
+                raise InputError(f"sidecar keys {', '.join(map(repr, unknown))} are not sidecar fields; use "
+                                 "those of vibsynth.io.sidecar.Sidecar", "sidecar")
+            sidecar = Sidecar(**sidecar)
+        self.extra = sidecar
         self.written = 0
         self._peak = 0.0
         self._committed = False
-        remove_stale_partials(self.path)
-        self._temporary = _partial_name(self.path)
-        self._sidecar_temporary: Path | None = None
-        self._handle = None
+        self._data = atomic.AtomicFile(self.path)
+        self._side: atomic.AtomicFile | None = None
+        self._format_writer = None
         try:
-            self._open()
+            self._format_writer = self._open()
         except BaseException:
             self.abort()
             raise
 
-    # ---------------------------------------------------------- opening
-    def _open(self) -> None:
+    def _open(self):
+        temporary, where = self._data.temporary, str(self.path)
         if self.format in ("wav", "flac"):
-            try:
-                self._handle = soundfile.SoundFile(
-                    str(self._temporary), mode="w", samplerate=int(round(self.rate_hz)), channels=1,
-                    subtype=_SOUNDFILE_SUBTYPE[self.subtype], format=self.format.upper(),
-                )
-            except (RuntimeError, soundfile.LibsndfileError, ValueError) as error:
-                raise InputError(
-                    f"cannot write .{self.format} ({self.subtype}) at {self.rate_hz:g} Hz: {error}", str(self.path)
-                ) from None
-        elif self.format == "npy":
-            self._handle = open(self._temporary, "wb")
-            shape = (self.samples,) if len(self.quantities) == 1 else (self.samples, len(self.quantities))
-            header = {"descr": np.lib.format.dtype_to_descr(np.dtype("<f8")), "fortran_order": False, "shape": shape}
-            np.lib.format.write_array_header_1_0(self._handle, header)
-        else:
-            self._handle = open(self._temporary, "w", encoding="ascii", newline="")
-            names = ["time_s"] + [COLUMN_NAMES[q] for q in self.quantities]
-            self._handle.write(",".join(names) + "\n")
-            self._csv_row = ",".join([_CSV_TIME_FORMAT] + [_CSV_VALUE_FORMAT] * len(self.quantities)) + "\n"
+            return wavflac.AudioWriter(temporary, where, self.format, self.subtype, self.rate_hz, self.scale)
+        if self.format == "npy":
+            return npyarray.NpyWriter(temporary, where, self.samples, len(self.quantities))
+        return csvtable.CsvWriter(temporary, where, self.quantities, self.rate_hz)
 
-    # ---------------------------------------------------------- writing
     def write(self, chunk) -> None:
         """Append samples: physical values, shape (m,) or (m, q) with one column per quantity."""
         values = np.asarray(chunk, dtype=np.float64)
@@ -521,92 +416,40 @@ class DriveWriter:
             raise InputError(f"sample {self.written + bad} is not a finite number", str(self.path))
         if count:
             self._peak = max(self._peak, float(np.max(np.abs(values[:, 0]))))
-        if self.format in ("wav", "flac"):
-            self._write_audio(values[:, 0])
-        elif self.format == "npy":
-            self._handle.write(np.ascontiguousarray(values if len(self.quantities) > 1 else values[:, 0], dtype="<f8").tobytes())
-        else:
-            times = (np.arange(self.written, self.written + count) / self.rate_hz)[:, None]
-            table = np.hstack([times, values])
-            self._handle.write((self._csv_row * count) % tuple(table.ravel().tolist()))
+        self._format_writer.write(values, self.written)
         self.written += count
 
-    def _refuse(self, values: np.ndarray, normalised: np.ndarray, limit: float) -> None:
-        over = np.flatnonzero(~(np.abs(normalised) <= limit))
-        if over.size:
-            index = int(over[0])
-            value = float(values[index])
-            raise InputError(
-                f"sample {self.written + index} is {value:.6g} g, beyond the full scale of {self.scale:.6g} g; "
-                "raise the full scale (or let it follow the record's peak) - samples are never clipped",
-                str(self.path),
-            )
+    def sidecar(self) -> Sidecar:
+        """The sidecar as it will be written (the writer's own fields override the caller's)."""
+        from vibsynth import __version__
 
-    def _write_audio(self, values: np.ndarray) -> None:
-        with np.errstate(over="ignore"):  # a value beyond full scale is refused just below
-            if self.subtype == "float":
-                normalised = (values / self.scale).astype(np.float32)
-                self._refuse(values, normalised, 1.0)
-                self._handle.write(normalised)
-                return
-            bits = _PCM_BITS[self.subtype]
-            counts = np.rint(values * (2.0 ** (bits - 1) / self.scale))
-        self._refuse(values, counts / 2.0 ** (bits - 1), (2 ** (bits - 1) - 1) / 2.0 ** (bits - 1))
-        if bits == 16:
-            self._handle.write(counts.astype(np.int16))
-        else:  # libsndfile stores the top 24 bits of a left-justified int32
-            self._handle.write(counts.astype(np.int32) << 8)
-
-    # ---------------------------------------------------------- finishing
-    def sidecar(self) -> dict:
-        """The sidecar as it will be written (the writer's own keys override ``sidecar`` extras)."""
-        data = {"sidecar_version": SIDECAR_VERSION}
-        data.update(self.extra)
-        data.update(
-            {
-                "unit": "g",
-                "scale": self.scale,
-                "rate": self.rate_hz,
-                "samples": self.samples,
-                "duration_s": self.samples / self.rate_hz,
-                "format": self.format,
-                "subtype": self.subtype,
-                "columns": (["time_s"] if self.format == "csv" else []) + [COLUMN_NAMES[q] for q in self.quantities],
-                "units": {COLUMN_NAMES[q]: QUANTITY_UNITS[q] for q in self.quantities},
-                "peak_g": self._peak,
-            }
-        )
-        data.setdefault("tool", {"name": "vibsynth", "version": __version__})
-        return data
+        return self.extra.with_file(scale=self.scale, rate=self.rate_hz, samples=self.samples,
+                                    file_format=self.format, subtype=self.subtype, quantities=self.quantities,
+                                    peak_g=self._peak, tool={"name": "vibsynth", "version": __version__})
 
     def commit(self) -> dict:
-        """Close the data, write the sidecar, and rename both into place (data first). Returns the sidecar."""
+        """Close the data, write the sidecar, and rename both into place (data first). Returns the sidecar's JSON."""
         if self.written != self.samples:
             raise InputError(f"{self.written} samples written, {self.samples} announced", str(self.path))
         self._close()
-        if self.format == "wav":
-            _zero_peak_time_stamp(self._temporary)
+        self._format_writer.finish()
         sidecar = self.sidecar()
-        self._sidecar_temporary = _partial_name(self.path, ".json")
-        with open(self._sidecar_temporary, "w", encoding="utf-8") as handle:
-            json.dump(sidecar, handle, indent=2, allow_nan=False)
-            handle.write("\n")
-            handle.flush()
-            os.fsync(handle.fileno())
-        with open(self._temporary, "rb") as handle:
-            os.fsync(handle.fileno())
+        data = sidecar.to_dict()
         final_sidecar = sidecar_path(self.path)
+        self._side = atomic.AtomicFile(final_sidecar)
+        self._side.temporary.write_text(sidecar.to_json(), encoding="utf-8")
+        with open(self._side.temporary, "rb") as handle:
+            os.fsync(handle.fileno())
         if final_sidecar.exists():
             final_sidecar.unlink()
-        os.replace(self._temporary, self.path)
-        os.replace(self._sidecar_temporary, final_sidecar)
+        self._data.commit(sync=True)
+        self._side.commit(sync=False)
         self._committed = True
-        return sidecar
+        return data
 
     def _close(self) -> None:
-        if self._handle is not None:
-            handle, self._handle = self._handle, None
-            handle.close()
+        if self._format_writer is not None:
+            self._format_writer.close()
 
     def abort(self) -> None:
         """Close and remove the temporary files (the destination is untouched)."""
@@ -614,12 +457,9 @@ class DriveWriter:
             self._close()
         except Exception:  # noqa: BLE001 - cleaning up after a failure; the first error matters
             pass
-        for temporary in (self._temporary, self._sidecar_temporary):
-            if temporary is not None and not self._committed:
-                try:
-                    os.unlink(temporary)
-                except FileNotFoundError:
-                    pass
+        for pending in (self._data, self._side):
+            if pending is not None:
+                pending.discard()
 
     def __enter__(self) -> "DriveWriter":
         return self
@@ -627,30 +467,6 @@ class DriveWriter:
     def __exit__(self, kind, value, traceback) -> None:
         if kind is not None or not self._committed:
             self.abort()
-
-
-def _zero_peak_time_stamp(path: Path) -> None:
-    """Zero the time stamp libsndfile puts in a float WAV's PEAK chunk, so equal samples give equal bytes.
-
-    The PEAK chunk holds a version, the writing time (s since 1970) and each channel's peak
-    value and position; only the time is cleared (0: unknown).
-    """
-    with open(path, "r+b") as handle:
-        riff = handle.read(12)
-        if riff[:4] != b"RIFF" or riff[8:12] != b"WAVE":
-            return
-        position = 12
-        while True:
-            handle.seek(position)
-            header = handle.read(8)
-            if len(header) < 8 or header[:4] == b"data":
-                return
-            size = int.from_bytes(header[4:], "little")
-            if header[:4] == b"PEAK" and size >= 8:
-                handle.seek(position + 12)  # chunk id and size (8 bytes), then the 4-byte version
-                handle.write(bytes(4))
-                return
-            position += 8 + size + size % 2
 
 
 def write_drive(path, chunks, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
@@ -684,6 +500,7 @@ def write_drive(path, chunks, *, rate_hz: float, samples: int, quantities=("acce
         return writer.commit()
 
 
+
 # ----------------------------------------------------------------- reading
 @dataclass(frozen=True)
 class DriveFile:
@@ -703,8 +520,8 @@ class DriveFile:
         Number of samples.
     quantities : tuple of str
         Data columns (``acceleration`` first).
-    sidecar : dict or None
-        The sidecar as read (None when there is none).
+    sidecar : Sidecar or None
+        The sidecar as read and validated (None when there is none).
     ramp_in_s, ramp_out_s : float
         Ramps recorded in the sidecar (0 when absent); verification judges
         the steady part between them.
@@ -721,7 +538,7 @@ class DriveFile:
     scale: float
     samples: int
     quantities: tuple
-    sidecar: dict | None = field(default=None, compare=False)
+    sidecar: Sidecar | None = field(default=None, compare=False)
     ramp_in_s: float = 0.0
     ramp_out_s: float = 0.0
     _data_offset: int = field(default=0, repr=False, compare=False)
@@ -798,147 +615,15 @@ class DriveFile:
         return np.concatenate(parts) if parts else np.zeros(0)
 
     def _iter_audio(self, chunk: int, start: int, stop: int) -> Iterator[np.ndarray]:
-        with soundfile.SoundFile(str(self.path)) as handle:
-            position = start
-            try:
-                handle.seek(start)
-            except (RuntimeError, soundfile.LibsndfileError) as error:
-                raise InputError(f"cannot read .{self.format} data at sample {start}: {error}", str(self.path)) from None
-            while position < stop:
-                count = min(chunk, stop - position)
-                try:
-                    data = handle.read(count, dtype="float64", always_2d=True)
-                except (RuntimeError, soundfile.LibsndfileError) as error:
-                    raise InputError(
-                        f"cannot read .{self.format} data after sample {position} (damaged or truncated file?): {error}",
-                        str(self.path),
-                    ) from None
-                if data.shape[0] != count:
-                    raise InputError(f"ends after {position + data.shape[0]} samples, expected {self.samples}", str(self.path))
-                position += count
-                yield data[:, 0] * self.scale
+        return wavflac.iter_chunks(self.path, self.format, chunk, start, stop, self.samples, self.scale)
 
     def _iter_npy(self, chunk: int, start: int, stop: int, column: int) -> Iterator[np.ndarray]:
-        dtype = np.dtype(self._dtype)
-        width = self._columns_in_file
-        with open(self.path, "rb") as handle:
-            handle.seek(self._data_offset + start * width * dtype.itemsize)
-            position = start
-            while position < stop:
-                count = min(chunk, stop - position)
-                data = np.fromfile(handle, dtype=dtype, count=count * width)
-                if data.size != count * width:
-                    raise InputError(f"ends after about {position + data.size // width} samples, expected {self.samples}", str(self.path))
-                position += count
-                yield data.reshape(count, width)[:, column].astype(np.float64) * self.scale
+        return npyarray.iter_chunks(self.path, self._data_offset, self._dtype, self._columns_in_file, column, chunk,
+                                    start, stop, self.samples, self.scale)
 
     def _iter_csv(self, chunk: int, start: int, stop: int, column: int) -> Iterator[np.ndarray]:
-        try:
-            yield from self._iter_csv_rows(chunk, start, stop, column)
-        except UnicodeDecodeError as error:
-            raise InputError(f"is not a text table (byte {error.start} of a line is not UTF-8)", str(self.path)) from None
-
-    def _iter_csv_rows(self, chunk: int, start: int, stop: int, column: int) -> Iterator[np.ndarray]:
-        tolerance = 0.1 / self.rate_hz
-        with open(self.path, "r", encoding="utf-8", newline="") as handle:
-            lines = (line for line in handle if line.strip() and not line.lstrip().startswith("#"))
-            next(lines, None)  # header
-            for _ in itertools.islice(lines, start):
-                pass
-            position = start
-            while position < stop:
-                count = min(chunk, stop - position)
-                block = list(itertools.islice(lines, count))
-                if len(block) != count:
-                    raise InputError(f"ends after {position + len(block)} rows, expected {self.samples}", str(self.path))
-                try:
-                    table = np.loadtxt(block, delimiter=",", ndmin=2, dtype=np.float64)
-                except ValueError:
-                    bad = _first_bad_row(block, self._columns_in_file)
-                    raise InputError(_bad_csv_row(block, self._columns_in_file), str(self.path),
-                                     f"row {position + bad + 2}") from None
-                if table.shape[1] != self._columns_in_file:
-                    raise InputError(
-                        f"rows {position + 2}-{position + count + 1} have {table.shape[1]} columns, the header {self._columns_in_file}",
-                        str(self.path),
-                    )
-                expected = np.arange(position, position + count) / self.rate_hz
-                off = np.abs(table[:, 0] - expected) > tolerance
-                if np.any(off):
-                    row = int(np.flatnonzero(off)[0])
-                    raise InputError(
-                        f"row {position + row + 2}: time {table[row, 0]:.9g} s does not match sample "
-                        f"{position + row} at {self.rate_hz:g} Hz ({expected[row]:.9g} s); the rate disagrees with the file",
-                        str(self.path),
-                    )
-                position += count
-                yield table[:, 1 + column] * self.scale
-
-
-def _first_bad_row(block: list, width: int) -> int:
-    for index, line in enumerate(block):
-        cells = line.strip().split(",")
-        try:
-            [float(cell) for cell in cells]
-        except ValueError:
-            return index
-        if len(cells) != width:
-            return index
-    return 0
-
-
-def _bad_csv_row(block: list, width: int) -> str:
-    line = block[_first_bad_row(block, width)].strip()
-    cells = line.split(",")
-    if len(cells) != width:
-        return f"has {len(cells)} values where the header has {width} columns: {line[:60]!r}"
-    return f"{line[:60]!r} is not a row of {width} numbers separated by commas"
-
-
-def _read_sidecar(path: Path) -> dict | None:
-    side = sidecar_path(path)
-    if not side.exists():
-        return None
-    try:
-        data = json.loads(side.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as error:
-        raise InputError(f"is not valid JSON ({error})", str(side)) from None
-    except RecursionError:
-        raise InputError("is not a drive sidecar (JSON nested too deeply)", str(side)) from None
-    if not isinstance(data, dict):
-        raise InputError("must hold a JSON object", str(side))
-    for key in ("unit", "scale", "rate", "samples"):
-        if key not in data:
-            raise InputError(f"has no {key!r} key; a drive sidecar records unit, scale, rate and samples", str(side))
-    if data["unit"] != "g":
-        raise InputError(f"unit {data['unit']!r} is not supported; drive files hold acceleration in g", str(side), "unit")
-    for key in ("scale", "rate"):
-        value = data[key]
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value <= 0:
-            raise InputError(f"{key} {value!r} must be a number > 0", str(side), key)
-    samples = data["samples"]
-    if isinstance(samples, bool) or not isinstance(samples, int) or samples < 0:
-        raise InputError(f"samples {samples!r} must be a whole number >= 0", str(side), "samples")
-    for key in ("ramp_in_s", "ramp_out_s"):
-        value = data.get(key, 0.0)
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value < 0:
-            raise InputError(f"{key} {value!r} must be a number of seconds >= 0", str(side), key)
-    duration = samples / data["rate"]
-    ramps = data.get("ramp_in_s", 0.0) + data.get("ramp_out_s", 0.0)
-    if ramps > duration * (1 + 1e-9):
-        raise InputError(f"ramps of {ramps:g} s in all are longer than the {duration:g} s record", str(side), "ramp_in_s")
-    for key, kind, what in (("format", str, "text such as \"flac\""), ("options", dict, "a JSON object"),
-                            ("profile", dict, "a JSON object"), ("columns", list, "a list of column names")):
-        if key in data and not isinstance(data[key], kind):
-            raise InputError(f"{key} must be {what}, got {data[key]!r:.40}", str(side), key)
-    if "columns" in data and not all(isinstance(name, str) for name in data["columns"]):
-        raise InputError("columns must be a list of column names (text)", str(side), "columns")
-    for key in ("kurtosis", "skewness", "clip"):
-        value = data.get("options", {}).get(key)
-        if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))
-                                  or not math.isfinite(value)):
-            raise InputError(f"{key} {value!r:.40} must be a finite number or null", str(side), f"options.{key}")
-    return data
+        return csvtable.iter_chunks(self.path, self._columns_in_file, column, chunk, start, stop, self.samples,
+                                    self.rate_hz, self.scale)
 
 
 def _quantities_from_names(names, where: str) -> tuple:
@@ -988,28 +673,22 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
         raise InputError("is a folder, not a drive file", where)
     if not path.is_file():
         raise InputError("no such drive file", where)
-    sidecar = _read_sidecar(path)
+    sidecar = Sidecar.read(path)
     side = str(sidecar_path(path))
-    if sidecar is not None and sidecar.get("format", file_format) != file_format:
-        raise InputError(f"sidecar says format {sidecar['format']!r} but the file is .{file_format}", side, "format")
+    if sidecar is not None and (sidecar.format or file_format) != file_format:
+        raise InputError(f"sidecar says format {sidecar.format!r} but the file is .{file_format}", side, "format")
     for given, key, what in ((rate_hz, "rate", "rate"), (scale, "scale", "scale")):
         if given is not None:
             value = float(given)
             if not (math.isfinite(value) and value > 0):
                 raise InputError(f"{what} {given!r} must be a finite number > 0", what)
-            if sidecar is not None and not math.isclose(value, float(sidecar[key]), rel_tol=1e-12):
-                raise InputError(f"given {what} {value:g} disagrees with the sidecar's {float(sidecar[key]):g}", side, key)
+            recorded = getattr(sidecar, key) if sidecar is not None else None
+            if recorded is not None and not math.isclose(value, float(recorded), rel_tol=1e-12):
+                raise InputError(f"given {what} {value:g} disagrees with the sidecar's {float(recorded):g}", side, key)
     offset, width, dtype = 0, 1, "<f8"
     names = None
     if file_format in ("wav", "flac"):
-        try:
-            info = soundfile.info(str(path))
-        except (RuntimeError, soundfile.LibsndfileError) as error:
-            raise InputError(f"cannot read as .{file_format}: {error}", where) from None
-        if info.channels != 1:
-            raise InputError(f"has {info.channels} channels; a drive file has one", where)
-        header_rate, count = float(info.samplerate), int(info.frames)
-        subtype = {"FLOAT": "float", "DOUBLE": "float", "PCM_24": "pcm24", "PCM_16": "pcm16"}.get(info.subtype, info.subtype.lower())
+        header_rate, count, subtype = wavflac.read_header(path, file_format)
         if rate_hz is not None and float(rate_hz) != header_rate:
             raise InputError(f"given rate {float(rate_hz):g} Hz disagrees with the file header's {header_rate:g} Hz", where)
         rate = header_rate
@@ -1019,50 +698,19 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
                 where,
             )
     elif file_format == "npy":
-        with open(path, "rb") as handle:
-            try:
-                version = np.lib.format.read_magic(handle)
-                reader = np.lib.format.read_array_header_1_0 if version == (1, 0) else np.lib.format.read_array_header_2_0
-                shape, fortran, numpy_dtype = reader(handle)
-            except ValueError as error:
-                raise InputError(f"is not a readable .npy file ({error})", where) from None
-            offset = handle.tell()
-        if fortran or numpy_dtype.kind != "f" or len(shape) not in (1, 2):
-            raise InputError(
-                f"holds {numpy_dtype} of shape {shape}{' in Fortran order' if fortran else ''}; "
-                "a drive .npy holds floats of shape (n,) or (n, columns) in C order",
-                where,
-            )
-        count, width, dtype, subtype = int(shape[0]), (1 if len(shape) == 1 else int(shape[1])), numpy_dtype.str, "float64"
-        rate = None
+        count, width, dtype, offset = npyarray.read_header(path)
+        subtype, rate = "float64", None
     else:
-        header = ""
-        count = 0
-        try:
-            with open(path, "r", encoding="utf-8", newline="") as handle:
-                for line in handle:
-                    if not line.strip() or line.lstrip().startswith("#"):
-                        continue
-                    if not header:
-                        header = line
-                    else:
-                        count += 1
-        except UnicodeDecodeError as error:
-            raise InputError(f"is not a text table (byte {error.start} of a line is not UTF-8)", where) from None
-        names = [cell.strip() for cell in header.strip().split(",")]
-        if len(names) < 2 or names[0].lower() not in ("time_s", "time", "t", "time (s)"):
-            raise InputError(
-                f"header {header.strip()!r} must start with time_s and an acceleration column (g)", where, "row 1"
-            )
+        names, count = csvtable.read_header(path)
         width, subtype, rate = len(names), "text", None
     if sidecar is not None:
-        rate_side = float(sidecar["rate"])
+        rate_side = float(sidecar.rate)
         if rate is not None and rate != rate_side:
             raise InputError(f"sidecar rate {rate_side:g} Hz disagrees with the file header's {rate:g} Hz", side, "rate")
         rate = rate_side
-        if int(sidecar["samples"]) != count:
-            raise InputError(f"sidecar says {sidecar['samples']} samples but the file holds {count}", side, "samples")
-        scale_value = float(sidecar["scale"])
+        if int(sidecar.samples) != count:
+            raise InputError(f"sidecar says {sidecar.samples} samples but the file holds {count}", side, "samples")
+        scale_value = float(sidecar.scale)
     else:
         if rate is None:
             if rate_hz is None:
@@ -1072,17 +720,18 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
                 )
             rate = float(rate_hz)
         scale_value = float(scale) if scale is not None else 1.0
+    recorded_columns = list(sidecar.columns) if sidecar is not None else []
     if file_format == "csv":
         quantities = _quantities_from_names(names[1:], where)
         width = len(names)
     elif file_format == "npy":
-        if width > 1 and not (sidecar or {}).get("columns"):
+        if width > 1 and not recorded_columns:
             raise InputError(
                 f"holds {width} columns but no sidecar names them; save acceleration (g) alone as shape (n,), "
                 "or give a sidecar with 'columns'",
                 where,
             )
-        columns = (sidecar or {}).get("columns") or [COLUMN_NAMES["acceleration"]]
+        columns = recorded_columns or [COLUMN_NAMES["acceleration"]]
         if len(columns) != width:
             raise InputError(f"sidecar lists {len(columns)} columns but the file holds {width}", side, "columns")
         quantities = _quantities_from_names(columns, where)
@@ -1099,8 +748,8 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
         samples=count,
         quantities=quantities,
         sidecar=sidecar,
-        ramp_in_s=float((sidecar or {}).get("ramp_in_s", 0.0)),
-        ramp_out_s=float((sidecar or {}).get("ramp_out_s", 0.0)),
+        ramp_in_s=sidecar.ramp_in_s if sidecar is not None else 0.0,
+        ramp_out_s=sidecar.ramp_out_s if sidecar is not None else 0.0,
         _data_offset=offset,
         _columns_in_file=width,
         _dtype=dtype,
@@ -1110,6 +759,9 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
 __all__ = [
     "COLUMN_NAMES",
     "DEFAULT_HEADROOM",
+    "QUANTITY_UNITS",
+    "STALE_PARTIAL_AGE_S",
+    "Sidecar",
     "DriveFile",
     "DriveWriter",
     "FORMATS",

@@ -355,14 +355,9 @@ def write_profile(profile: AsdProfile, path: str | os.PathLike) -> Path:
         raise InputError(f"cannot write a profile as '{destination.suffix}'; use .toml or .csv", str(destination))
     if not destination.parent.exists():
         raise InputError("folder does not exist; create it first", str(destination.parent))
-    temporary = destination.with_name(f".{destination.name}.partial-{os.getpid()}")
-    try:
-        temporary.write_text(text, encoding="utf-8")
-        os.replace(temporary, destination)
-    finally:
-        if temporary.exists():
-            temporary.unlink()
-    return destination
+    from vibsynth.io.atomic import write_text_atomic
+
+    return write_text_atomic(destination, text)
 
 
 def _toml_string(text: str) -> str:

@@ -1,0 +1,297 @@
+"""Atomic writing: every file the tool writes goes through here.
+
+One scheme for every writer (drive files, sidecars, profiles, report.json,
+verify.json, figures, the PDF): the content is written to a hidden temporary
+file in the destination's folder, named ``.NAME.PID.partial`` (``.NAME.PID.N.partial``
+when that name is taken), flushed to disk, and renamed over the destination
+only when complete (POSIX rename(2) is atomic: a reader sees the old file or
+the new one, never a mixture).  An exception removes the temporary file; a
+killed process leaves the destination as it was and at most a ``.partial``
+file.  The next write to the same destination removes such stale partial
+files: those whose writing process no longer runs on this machine and that
+have not changed for :data:`STALE_PARTIAL_AGE_S` seconds (a writer on another
+machine sharing the folder keeps its file changing).
+
+References
+----------
+POSIX rename(2) (atomic replacement), fsync(2), kill(2) with signal 0
+(process existence check).
+"""
+
+from __future__ import annotations
+
+import itertools
+import json
+import os
+import re
+import time
+from pathlib import Path
+
+#: A partial file of a process that no longer runs, unchanged for this long (s), is removed as stale.
+STALE_PARTIAL_AGE_S = 60.0
+
+#: Suffix of every temporary file.
+PARTIAL_SUFFIX = ".partial"
+
+
+def partial_path(destination) -> Path:
+    """Create (exclusively) and return a fresh temporary file for ``destination``.
+
+    Parameters
+    ----------
+    destination : str or os.PathLike
+        The final file.
+
+    Returns
+    -------
+    pathlib.Path
+        ``.NAME.PID.partial`` (or ``.NAME.PID.N.partial``) beside the destination, created empty.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> temporary = partial_path(folder / "report.json")
+    >>> temporary.name.startswith(".report.json.") and temporary.name.endswith(".partial")
+    True
+    >>> temporary.unlink()
+
+    References
+    ----------
+    POSIX open(2) with O_CREAT | O_EXCL.
+    """
+    path = Path(destination)
+    for attempt in itertools.count():
+        extra = f".{attempt}" if attempt else ""
+        candidate = path.with_name(f".{path.name}.{os.getpid()}{extra}{PARTIAL_SUFFIX}")
+        try:
+            descriptor = os.open(candidate, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o666)
+        except FileExistsError:
+            continue
+        os.close(descriptor)
+        return candidate
+    raise AssertionError("unreachable")  # pragma: no cover
+
+
+def _process_runs(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)  # signal 0: existence and permission check only (POSIX)
+    except ProcessLookupError:
+        return False
+    except (OSError, OverflowError):  # not ours to signal, or cannot tell: treat as running
+        return True
+    return True
+
+
+def remove_stale_partials(destination, min_age_s: float = STALE_PARTIAL_AGE_S) -> list:
+    """Remove the temporary files a killed writer left for ``destination``.
+
+    Parameters
+    ----------
+    destination : str or os.PathLike
+        The final file whose stale partials are removed.
+    min_age_s : float
+        A partial file must be unchanged for this many seconds to be stale.
+
+    Returns
+    -------
+    list of pathlib.Path
+        The files removed (none on systems other than POSIX).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> remove_stale_partials(pathlib.Path(tempfile.mkdtemp()) / "drive.flac")
+    []
+
+    References
+    ----------
+    POSIX kill(2) with signal 0 (process existence check).
+    """
+    path = Path(destination)
+    if os.name != "posix":
+        return []
+    pattern = re.compile(rf"\.{re.escape(path.name)}\.(\d+)(?:\.\d+)?{re.escape(PARTIAL_SUFFIX)}")
+    removed = []
+    try:
+        entries = list(os.scandir(path.parent))
+    except OSError:
+        return removed
+    now = time.time()
+    for entry in entries:
+        match = pattern.fullmatch(entry.name)
+        if not match or int(match.group(1)) == os.getpid() or _process_runs(int(match.group(1))):
+            continue
+        try:
+            if not entry.is_file(follow_symlinks=False) or now - entry.stat(follow_symlinks=False).st_mtime < min_age_s:
+                continue
+            os.unlink(entry.path)
+        except OSError:
+            continue
+        removed.append(Path(entry.path))
+    return removed
+
+
+class AtomicFile:
+    """One destination written under a temporary name, published by :meth:`commit`.
+
+    Parameters
+    ----------
+    destination : str or os.PathLike
+        The final file.  Stale partials of it are removed first.
+
+    Notes
+    -----
+    Write to :attr:`temporary` (any library that takes a path), then call
+    :meth:`commit`.  As a context manager, leaving the block by an exception,
+    or without a commit, removes the temporary file.  Several files published
+    together (a report's figures) are committed one after the other once all
+    are complete (:func:`commit_all`).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> target = pathlib.Path(tempfile.mkdtemp()) / "note.txt"
+    >>> with AtomicFile(target) as pending:
+    ...     _ = pending.temporary.write_text("done")
+    ...     _ = pending.commit()
+    >>> target.read_text()
+    'done'
+
+    References
+    ----------
+    POSIX rename(2), fsync(2).
+    """
+
+    def __init__(self, destination):
+        self.destination = Path(destination)
+        remove_stale_partials(self.destination)
+        self.temporary = partial_path(self.destination)
+        self.committed = False
+
+    def commit(self, sync: bool = True) -> Path:
+        """Flush the temporary file to disk and rename it over the destination; returns the destination."""
+        if sync:
+            with open(self.temporary, "rb") as handle:
+                os.fsync(handle.fileno())
+        os.replace(self.temporary, self.destination)
+        self.committed = True
+        return self.destination
+
+    def discard(self) -> None:
+        """Remove the temporary file (the destination is untouched)."""
+        if not self.committed:
+            try:
+                os.unlink(self.temporary)
+            except FileNotFoundError:
+                pass
+
+    def __enter__(self) -> "AtomicFile":
+        return self
+
+    def __exit__(self, kind, value, traceback) -> None:
+        self.discard()
+
+
+def commit_all(files) -> list:
+    """Commit several complete :class:`AtomicFile` s in order; returns their destinations.
+
+    Examples
+    --------
+    >>> commit_all([])
+    []
+
+    References
+    ----------
+    POSIX rename(2).
+    """
+    return [pending.commit() for pending in files]
+
+
+def write_bytes_atomic(destination, data: bytes) -> Path:
+    """Write ``data`` to ``destination`` atomically; returns the destination.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> path = write_bytes_atomic(pathlib.Path(tempfile.mkdtemp()) / "x.bin", b"ab")
+    >>> path.read_bytes()
+    b'ab'
+
+    References
+    ----------
+    POSIX rename(2), fsync(2).
+    """
+    with AtomicFile(destination) as pending:
+        with open(pending.temporary, "wb") as handle:
+            handle.write(data)
+        return pending.commit()
+
+
+def write_text_atomic(destination, text: str) -> Path:
+    """Write UTF-8 ``text`` to ``destination`` atomically; returns the destination.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> write_text_atomic(pathlib.Path(tempfile.mkdtemp()) / "x.txt", "hi").read_text()
+    'hi'
+
+    References
+    ----------
+    POSIX rename(2), fsync(2).
+    """
+    return write_bytes_atomic(destination, text.encode("utf-8"))
+
+
+def json_text(data) -> str:
+    """The tool's JSON layout: two-space indent, no NaN/inf (RFC 8259), a final newline.
+
+    Examples
+    --------
+    >>> json_text({"rate_hz": 5120.0})
+    '{\\n  "rate_hz": 5120.0\\n}\\n'
+
+    References
+    ----------
+    RFC 8259 (JSON).
+    """
+    return json.dumps(data, indent=2, allow_nan=False, default=_json_default) + "\n"
+
+
+def _json_default(value):
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return str(value)
+
+
+def write_json_atomic(destination, data) -> Path:
+    """Write ``data`` as JSON (:func:`json_text`) to ``destination`` atomically; returns the destination.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, json
+    >>> path = write_json_atomic(pathlib.Path(tempfile.mkdtemp()) / "r.json", {"schema_version": "1.0"})
+    >>> json.loads(path.read_text())["schema_version"]
+    '1.0'
+
+    References
+    ----------
+    RFC 8259 (JSON); POSIX rename(2).
+    """
+    return write_text_atomic(destination, json_text(data))
+
+
+__all__ = [
+    "AtomicFile",
+    "PARTIAL_SUFFIX",
+    "STALE_PARTIAL_AGE_S",
+    "commit_all",
+    "json_text",
+    "partial_path",
+    "remove_stale_partials",
+    "write_bytes_atomic",
+    "write_json_atomic",
+    "write_text_atomic",
+]
