@@ -128,7 +128,15 @@ def read_stdin_profile():
 
 
 def looks_like_toml(text: str) -> bool:
-    """Sniff a profile's text: TOML has ``[[breakpoints]]`` tables or ``key = value`` lines, a CSV table has neither."""
+    r"""Sniff a profile's text: TOML has ``[[breakpoints]]`` tables or ``key = value`` lines, a CSV table has neither.
+
+    Examples
+    --------
+    >>> looks_like_toml("[[breakpoints]]\nfrequency = 20\nasd = 0.04\n")
+    True
+    >>> looks_like_toml("# Hz, g^2/Hz\n20,0.04\n2000,0.04\n")
+    False
+    """
     for line in text.splitlines():
         stripped = line.split("#", 1)[0].strip()
         if not stripped:

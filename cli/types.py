@@ -55,6 +55,17 @@ def parse_tolerance(text) -> tuple[float, float]:
     """``"3"`` -> (-3, +3); ``"-2,3"`` or ``"-2:+3"`` -> (-2, +3) (dB); a (low, high) pair is checked as it is.
 
     Raises :class:`InputError` naming ``--tolerance`` with what would be right.
+
+    Examples
+    --------
+    >>> parse_tolerance("3")
+    (-3.0, 3.0)
+    >>> parse_tolerance("-2,3")
+    (-2.0, 3.0)
+
+    References
+    ----------
+    None (argument parsing; +/-3 dB bands are widespread test-specification practice).
     """
     if isinstance(text, (tuple, list)):
         parts = [float(p) for p in text]

@@ -413,3 +413,27 @@ def test_parameter_error_from_the_library_reaches_the_user_with_option_names(cap
     assert status == 2
     assert err.strip() == "vibsynth: error: --skewness: --skewness 9 is beyond the reachable range"
     assert OPTION_NAMES["rate_hz"] == "--rate" and OPTION_NAMES["duration_s"] == "--duration"
+
+
+def test_minus_o_is_the_output_of_info_and_verify_too(tmp_path, capsys):
+    status, _, err = run(capsys, "info", "bench-flat", "-o", tmp_path / "p.toml", "--level-db", "-6", "-q")
+    assert status == 0, err
+    # -6 dB on the ASD halves the g RMS (factor 10^(-6/20), decibel definition)
+    assert read_profile(tmp_path / "p.toml").grms == pytest.approx(read_profile("bench-flat").grms * 10 ** (-6 / 20))
+    status, _, err = run(capsys, "generate", "bench-flat", "-o", tmp_path / "d.npy", "--duration", 4, "--rate", 5120,
+                         "--seed", 1, "-q")
+    assert status == 0, err
+    status, out, err = run(capsys, "verify", tmp_path / "d.npy", "-o", tmp_path / "rep", "--json")
+    assert status == 0, err
+    assert json.loads(out)["report"]["json"] == str(tmp_path / "rep" / "verify.json")
+    assert (tmp_path / "rep" / "verify.json").exists()
+
+
+def test_caution_reaches_stderr_when_a_run_fails_after_writing_the_drive(tmp_path, capsys):
+    # the Welch resolution is checked against the band only when verifying: the drive exists by then
+    status, out, err = run(capsys, "run", "bench-flat", "-o", tmp_path / "r", "--duration", 20, "--seed", 1,
+                           "--format", "npy", "--resolution", 1000)
+    assert status == 2
+    assert (tmp_path / "r" / "drive.npy").exists()
+    assert "vibsynth: error:" in err and "--resolution" in err
+    assert DRIVE_CAUTION in err
