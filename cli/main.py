@@ -40,10 +40,12 @@ OPTION_NAMES = {
     "memory_budget_mb": "--memory-budget",
     "min_fraction_within": "--min-fraction",
     "quantities": "--quantities",
+    "ramp": "--ramp",
     "ramp_s": "--ramp",
     "rate": "--rate",
     "rate_hz": "--rate",
     "records": "--records",
+    "resolution": "--resolution",
     "resolution_hz": "--resolution",
     "scale": "--scale",
     "seed": "--seed",
@@ -74,19 +76,15 @@ def cli_message(error: InputError) -> str:
     that is a parameter name); an error about a file (a sidecar's ``scale``
     key, a profile's row) is printed as it is.  Then the ``source`` and
     ``location`` fields are mapped, and in the message the parameters written
-    as code (```clip```), snake_case parameters (``rate_hz``) and a leading
-    parameter name equal to the error's field.  Ordinary words stay.
+    as code (```clip```) and snake_case parameters (``rate_hz``).  Ordinary
+    words ("rate 4000 Hz must exceed ...") stay: the field in front names the option.
     """
     source = str(error.source) if error.source else None
     if source is not None and source not in OPTION_NAMES:
         return error.one_line()
-    fields = {str(f) for f in (error.source, error.location) if f}
     text = " ".join(str(error.message).split())
     text = _CODE_NAME.sub(lambda m: OPTION_NAMES.get(m.group(1), m.group(0)), text)
     text = _SNAKE_NAME.sub(lambda m: OPTION_NAMES.get(m.group(1), m.group(1)), text)
-    first = text.split(" ", 1)[0]
-    if first in fields and first in OPTION_NAMES:
-        text = OPTION_NAMES[first] + text[len(first):]
     return InputError(text, option_name(error.source), option_name(error.location)).one_line()
 
 

@@ -389,10 +389,10 @@ def test_warnings_are_dropped_when_the_command_ends_in_bad_input(tmp_path, capsy
 @pytest.mark.parametrize("error, expected", [
     (InputError("`clip` cannot be combined with `kurtosis`; give either", "clip"),
      "--clip: --clip cannot be combined with --kurtosis; give either"),
-    (InputError("clip 0.5 must be at least 1", "clip"), "--clip: --clip 0.5 must be at least 1"),
+    (InputError("clip 0.5 must be at least 1", "clip"), "--clip: clip 0.5 must be at least 1"),
     (InputError("rate_hz 100 Hz must exceed twice the top frequency", location="rate_hz"),
      "--rate: --rate 100 Hz must exceed twice the top frequency"),
-    (InputError("kurtosis 50 is beyond the reachable range", "kurtosis"), "--kurtosis: --kurtosis 50 is beyond"),
+    (InputError("kurtosis 50 is beyond the reachable range", "kurtosis"), "--kurtosis: kurtosis 50 is beyond"),
     (InputError("the clip level sets the kurtosis itself", "clip"), "--clip: the clip level sets the kurtosis itself"),
     (InputError("scale None must be a number > 0", "/data/d.npy.json", "scale"),
      "/data/d.npy.json: scale: scale None must be a number > 0"),  # a key of a file, not a parameter
