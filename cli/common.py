@@ -1,9 +1,14 @@
-"""Shared pieces of the command line: error reporting, profile loading, cautions."""
+"""Shared pieces of the command line: messages, verbosity, profile loading, the drive-file caution, units.
+
+Nothing here imports numpy: the heavy modules are imported inside the
+functions that need them.
+"""
 
 from __future__ import annotations
 
 import math
 import sys
+import time
 
 import click
 
@@ -17,11 +22,133 @@ def fail(message: str) -> "NoReturn":  # noqa: F821
     raise click.UsageError(" ".join(str(message).split()))
 
 
+#: Exact metres per inch (international inch, 1959).
+METRE_PER_INCH = 0.0254
+
+#: PROFILE value that reads the profile from standard input.
+STDIN = "-"
+
+
+class Session:
+    """What one invocation has said so far: verbosity, warnings (each once), the drive-file caution.
+
+    Kept in the root click context (``ctx.obj``); :func:`session` finds it.
+    Warnings are held until the command ends (or a drive file is written) and
+    then printed, one line each: a command that ends in bad input prints its
+    one error line only.
+    """
+
+    def __init__(self, verbosity: int = 0):
+        self.verbosity = verbosity
+        self.started = time.perf_counter()
+        self.warnings: list[str] = []
+        self._pending: list[str] = []
+        self.drive_written = False
+        self.caution_shown = False
+
+    def warn(self, message) -> None:
+        """Record a warning (printed as ``vibsynth: warning: ...`` by :meth:`flush`), each distinct message once."""
+        text = " ".join(str(message).split())
+        if text and text not in self.warnings:
+            self.warnings.append(text)
+            self._pending.append(text)
+
+    def flush(self) -> None:
+        """Print the warnings not printed yet."""
+        for text in self._pending:
+            click.echo(f"vibsynth: warning: {text}", err=True)
+        self._pending.clear()
+
+    def discard(self) -> None:
+        """Drop the warnings not printed yet (the command ended in an error line)."""
+        self._pending.clear()
+
+    def note(self, message: str) -> None:
+        """A progress note on stderr, only with -v."""
+        if self.verbosity > 0:
+            click.echo(f"vibsynth: {' '.join(str(message).split())} "
+                       f"[{time.perf_counter() - self.started:.2f} s]", err=True)
+
+    def caution(self) -> None:
+        """The warnings so far, then the drive-file caution on stderr (once per invocation)."""
+        self.flush()
+        if not self.caution_shown:
+            self.caution_shown = True
+            click.echo(DRIVE_CAUTION, err=True)
+
+
+_FALLBACK = Session()
+
+
+def session() -> Session:
+    """The current invocation's :class:`Session` (a module-level one outside a click context)."""
+    ctx = click.get_current_context(silent=True)
+    if ctx is not None:
+        root = ctx.find_root()
+        if isinstance(root.obj, Session):
+            return root.obj
+    return _FALLBACK
+
+
+def is_quiet(command_quiet: bool = False) -> bool:
+    """True when the command's --quiet or the group's -q asked for no summary."""
+    return bool(command_quiet) or session().verbosity < 0
+
+
+def note(message: str) -> None:
+    """A progress note on stderr, only with ``vibsynth -v``."""
+    session().note(message)
+
+
+def caution() -> None:
+    """Print the drive-file caution on stderr (once per invocation)."""
+    session().caution()
+
+
+def mark_drive_written() -> None:
+    """Remember that a drive file exists now: the caution will reach stderr however the command ends."""
+    session().drive_written = True
+
+
+def read_stdin_profile():
+    """A profile from standard input: TOML when the text has a ``[[`` table or a ``key =`` line, else CSV."""
+    from vibsynth.errors import InputError
+    from vibsynth.profile.files import parse_csv_profile, parse_toml_profile
+
+    text = sys.stdin.read()
+    if not text.strip():
+        raise InputError("no profile on stdin; pipe a TOML profile or a two-column CSV table (Hz, g^2/Hz)", "<stdin>")
+    if looks_like_toml(text):
+        return parse_toml_profile(text, source="<stdin>")
+    return parse_csv_profile(text, source="<stdin>")
+
+
+def looks_like_toml(text: str) -> bool:
+    r"""Sniff a profile's text: TOML has ``[[breakpoints]]`` tables or ``key = value`` lines, a CSV table has neither.
+
+    Examples
+    --------
+    >>> looks_like_toml("[[breakpoints]]\nfrequency = 20\nasd = 0.04\n")
+    True
+    >>> looks_like_toml("# Hz, g^2/Hz\n20,0.04\n2000,0.04\n")
+    False
+    """
+    for line in text.splitlines():
+        stripped = line.split("#", 1)[0].strip()
+        if not stripped:
+            continue
+        if stripped.startswith("[") or "=" in stripped:
+            return True
+    return False
+
+
 def load_profile(spec: str, grms: float | None = None, level_db: float | None = None):
-    """Read a profile (file or preset name) and apply an optional rescale."""
+    """Read a profile (file, preset name, or ``-`` for stdin) and apply an optional rescale."""
     from vibsynth.profile.files import read_profile
 
-    profile = read_profile(spec)
+    profile = read_stdin_profile() if spec == STDIN else read_profile(spec)
+    note(f"profile {profile.name}: {profile.frequency_min_hz:g}-{profile.frequency_max_hz:g} Hz, "
+         f"{profile.grms:.4g} g RMS")
     if grms is not None and level_db is not None:
         fail("give --grms or --level-db, not both")
     if grms is not None:
@@ -32,8 +159,67 @@ def load_profile(spec: str, grms: float | None = None, level_db: float | None = 
 
 
 def warn(message: str) -> None:
-    """One warning line on stderr."""
-    click.echo(f"vibsynth: warning: {message}", err=True)
+    """One warning line on stderr (``vibsynth: warning: ...``), each distinct message once."""
+    session().warn(message)
+
+
+def velocity_text(velocity_m_s: float, inch: bool) -> str:
+    """A velocity in the invocation's units: m/s, or in/s with --inch."""
+    return f"{velocity_m_s / METRE_PER_INCH:.4g} in/s" if inch else f"{velocity_m_s:.4g} m/s"
+
+
+def length_text(length_m: float, inch: bool) -> str:
+    """A displacement in the invocation's units: mm, or in with --inch."""
+    return f"{length_m / METRE_PER_INCH:.4g} in" if inch else f"{length_m * 1e3:.4g} mm"
+
+
+def limits_in_si(stroke_limit, velocity_limit, inch: bool) -> tuple[float | None, float | None]:
+    """--stroke-limit and --velocity-limit as given (mm, m/s; or in, in/s with --inch) -> (mm, m/s)."""
+    if not inch:
+        return stroke_limit, velocity_limit
+    stroke_mm = None if stroke_limit is None else stroke_limit * METRE_PER_INCH * 1e3
+    velocity_m_s = None if velocity_limit is None else velocity_limit * METRE_PER_INCH
+    return stroke_mm, velocity_m_s
+
+
+def check_limits_in_inches(profile, stroke_limit_in, velocity_limit_in_s) -> None:
+    """With --inch, refuse a profile beyond the rig limits in the units they were given (in, in/s).
+
+    The same 3-sigma rule as the drive job (which then finds the limits met);
+    this only phrases the refusal in inches.
+    """
+    from vibsynth.errors import InputError
+
+    if stroke_limit_in is not None:
+        need = profile.displacement_peak_to_peak_3sigma_m / METRE_PER_INCH
+        if need > stroke_limit_in:
+            raise InputError(
+                f"the profile needs {need:.3g} in peak-to-peak displacement (3 sigma), {need - stroke_limit_in:.3g} in "
+                f"({need / stroke_limit_in:.3g} x the limit) beyond the {stroke_limit_in:g} in stroke limit; "
+                "refusing to write the drive", "--stroke-limit")
+    if velocity_limit_in_s is not None:
+        need = 3.0 * profile.velocity_rms_m_s / METRE_PER_INCH
+        if need > velocity_limit_in_s:
+            raise InputError(
+                f"the profile needs {need:.3g} in/s peak velocity (3 sigma), {need - velocity_limit_in_s:.3g} in/s "
+                f"({need / velocity_limit_in_s:.3g} x the limit) beyond the {velocity_limit_in_s:g} in/s velocity "
+                "limit; refusing to write the drive", "--velocity-limit")
+
+
+def print_json(data) -> None:
+    """JSON on stdout (NaN/inf as null)."""
+    import json
+
+    click.echo(json.dumps(json_safe(data), indent=2, allow_nan=False, default=_json_default))
+
+
+def _json_default(value):
+    if hasattr(value, "item"):  # numpy scalars
+        return value.item()
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        return str(value)
 
 
 def is_interactive_stderr() -> bool:

@@ -7,10 +7,25 @@ import signal
 
 import click
 
-from vibsynth.cli.common import DRIVE_CAUTION, Progress, is_interactive_stderr, load_profile, warn
-from vibsynth import jobs as drive_job
-from vibsynth.generate import pipeline as synthesis
-from vibsynth.io import drivefile
+from vibsynth.cli import options
+from vibsynth.cli.common import (
+    Progress,
+    caution,
+    check_limits_in_inches,
+    is_interactive_stderr,
+    is_quiet,
+    length_text,
+    limits_in_si,
+    load_profile,
+    mark_drive_written,
+    note,
+    print_json,
+    session,
+    velocity_text,
+    warn,
+)
+from vibsynth.cli import types
+from vibsynth.cli.common import DRIVE_CAUTION
 
 #: Records longer than this many samples show a progress bar (on a terminal).
 PROGRESS_MIN_SAMPLES = 1 << 21
@@ -34,79 +49,41 @@ def _terminate_as_interrupt():
         signal.signal(signal.SIGTERM, previous)
 
 
-def _parse_quantities(text: str) -> tuple[str, ...]:
-    names, _ = synthesis.parse_quantities(text)
-    if names[0] != "acceleration":
-        names = ("acceleration",) + tuple(name for name in names if name != "acceleration")
-    return names
-
-
-#: Non-Gaussian options, shared with `vibsynth run`.
-kurtosis_option = click.option("--kurtosis", type=float, default=None, metavar="K",
-              help="Non-Gaussian drive with this kurtosis (3 is Gaussian; field vibration is often 4 to 8), by a "
-                   "cubic Hermite transform of the Gaussian stream, its spectrum pre-compensated so the ASD still "
-                   "meets the target. Below 3 (and for some skewed targets) the inverse (hardening) form is used. Out-of-range values are refused "
-                   "with the reachable range.")
-skewness_option = click.option("--skewness", type=float, default=None, metavar="S",
-              help="Non-Gaussian drive with this skewness (0 is symmetric), as --kurtosis; alone it keeps the "
-                   "kurtosis at 3.")
-clip_option = click.option("--clip", type=float, default=None, metavar="SIGMA",
-              help="Hold every sample within SIGMA x the drive's RMS (the target g RMS), e.g. 3: the Gaussian "
-                   "stream is clipped and rescaled, its spectrum pre-compensated so the ASD still meets the target. "
-                   "Cannot be combined with --kurtosis/--skewness.")
+#: Non-Gaussian options, shared with `vibsynth run` (declared once in :mod:`vibsynth.cli.options`).
+kurtosis_option = options.kurtosis
+skewness_option = options.skewness
+clip_option = options.clip
 
 
 @click.command()
-@click.argument("profile")
+@options.profile_argument
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), metavar="FILE",
-              help="Drive file to write; the suffix picks the format: .wav, .flac, .csv or .npy. "
-                   "A sidecar FILE.json is written beside it.")
-@click.option("--duration", required=True, type=click.FloatRange(min=0, min_open=True), metavar="S",
-              help="Duration in seconds.")
-@click.option("--rate", required=True, type=click.FloatRange(min=0, min_open=True), metavar="HZ",
-              help="Sample rate in Hz; must exceed twice the profile's top frequency (2.56 x is the usual margin).")
-@click.option("--seed", type=click.IntRange(min=0), default=None, metavar="N",
-              help="Seed of the random phases; same seed and options give identical samples. "
-                   "Default: a fresh one, recorded in the sidecar.")
-@click.option("--amplitude", type=click.Choice(synthesis.AMPLITUDE_MODES), default="fixed", show_default=True,
-              help="fixed: random phases with line amplitudes fixed by the target, so every frame's periodogram "
-                   "is the target and the re-estimated ASD sits tightly inside tolerance bands (the default, as "
-                   "drive files are judged against those bands). rayleigh: Gaussian line amplitudes, making each "
-                   "record a true Gaussian realisation with the usual chi-square scatter (for statistical studies).")
-@click.option("--resolution", type=click.FloatRange(min=0, min_open=True), default=None, metavar="HZ",
+              help="The drive FILE to write (a file; `vibsynth run -o` takes a folder); the suffix picks the format: "
+                   ".wav, .flac, .csv or .npy. A sidecar FILE.json is written beside it.")
+@options.apply(*options.DRIVE_OPTIONS)
+@click.option("--resolution", type=types.positive(), default=None, metavar="HZ",
               help="Line spacing of overlap-add frames; also sets the shortest record (1/HZ s). "
                    "Default: min(lowest frequency, narrowest segment) / 8.")
 @click.option("--loop", is_flag=True,
               help="Write one periodic record that repeats seamlessly (for playback loops; no ramps).")
-@click.option("--quantities", default="acceleration", show_default=True, metavar="LIST",
+@click.option("--quantities", type=types.QuantityList(), default="acceleration", show_default=True, metavar="LIST",
               help="Columns for .csv/.npy: acceleration (g), velocity (m/s), displacement (m), comma separated "
                    "(accel,velocity,displacement), integrated in the frequency domain from the same spectrum.")
 @click.option("--subtype", type=click.Choice(["float", "pcm24", "pcm16"]), default=None,
               help="Sample format: .wav float (default), pcm24 or pcm16; .flac pcm24 (default) or pcm16.")
-@click.option("--full-scale", "full_scale_g", type=click.FloatRange(min=0, min_open=True), default=None, metavar="G",
+@click.option("--full-scale", "full_scale_g", type=types.positive(), default=None, metavar="G",
               help=".wav/.flac: the g value of full scale (sample 1.0). Default: the record's peak plus 0.1 %, "
                    "found by a first pass. A sample beyond a given full scale stops the run; nothing is clipped.")
-@click.option("--ramp", "ramp_s", type=click.FloatRange(min=0), default=0.0, metavar="S",
-              help="Raised-cosine fade-in and fade-out of S seconds each, so the rig never sees a step; "
-                   "the sidecar records them and verification judges the steady part.")
-@click.option("--stroke-limit", type=click.FloatRange(min=0, min_open=True), default=None, metavar="MM",
-              help="Refuse to write if the profile's 3-sigma displacement (peak-to-peak) exceeds MM.")
-@click.option("--velocity-limit", type=click.FloatRange(min=0, min_open=True), default=None, metavar="M_S",
-              help="Refuse to write if the profile's 3-sigma velocity (peak) exceeds M_S m/s.")
-@click.option("--grms", type=click.FloatRange(min=0, min_open=True), default=None, metavar="G",
-              help="Rescale the profile to this overall g RMS first.")
-@click.option("--level-db", type=float, default=None, metavar="DB",
-              help="Shift the profile by DB decibels first (-6 dB: half the g RMS).")
-@click.option("--memory-budget", "memory_budget_mb", type=click.FloatRange(min=1), default=256.0, show_default=True,
-              metavar="MB",
+@click.option("--memory-budget", "memory_budget_mb", type=types.FiniteFloatRange(min=1), default=256.0,
+              show_default=True, metavar="MB",
               help="Working memory for one periodic inverse FFT of the whole record; longer records are made by "
                    "overlap-add of independent frames in constant memory.")
-@kurtosis_option
-@skewness_option
-@clip_option
-@click.option("--quiet", is_flag=True, help="No summary and no progress bar (warnings and the caution still show).")
-def generate(profile, output, duration, rate, seed, amplitude, resolution, loop, quantities, subtype, full_scale_g,
-             ramp_s, stroke_limit, velocity_limit, grms, level_db, memory_budget_mb, kurtosis, skewness, clip, quiet):
+@options.inch
+@options.json_output
+@options.quiet
+def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms, level_db,
+             kurtosis, skewness, clip, resolution, loop, quantities, subtype, full_scale_g, memory_budget_mb, inch,
+             as_json, command_quiet):
     """Write a drive time history whose spectrum is PROFILE's: Gaussian, or with a kurtosis, skewness or clip level.
 
     Random phases on an inverse-FFT frequency grid: one periodic record when it
@@ -133,7 +110,13 @@ def generate(profile, output, duration, rate, seed, amplitude, resolution, loop,
     with alarm and abort limits, within the shaker's stroke, velocity and force
     limits, following your lab's procedures, local codes and licensed practice.
     """
+    from vibsynth import jobs as drive_job
+
+    quiet = is_quiet(command_quiet)
     target = load_profile(profile, grms, level_db)
+    if inch:
+        check_limits_in_inches(target, stroke_limit, velocity_limit)
+    stroke_limit, velocity_limit = limits_in_si(stroke_limit, velocity_limit, inch)
     request = drive_job.DriveRequest(
         output=output,
         duration_s=duration,
@@ -142,7 +125,7 @@ def generate(profile, output, duration, rate, seed, amplitude, resolution, loop,
         amplitude=amplitude,
         resolution_hz=resolution,
         loop=loop,
-        quantities=_parse_quantities(quantities),
+        quantities=quantities,
         subtype=subtype,
         full_scale_g=full_scale_g,
         ramp_s=ramp_s,
@@ -158,16 +141,23 @@ def generate(profile, output, duration, rate, seed, amplitude, resolution, loop,
     prepared = drive_job.prepare_drive(target, request)
     for message in prepared.warnings:
         warn(message)
-    written = write_with_progress(prepared, quiet)
-    if not quiet:
-        click.echo(format_written(prepared, written))
-    click.echo(DRIVE_CAUTION, err=True)
+    written = write_with_progress(prepared, quiet or as_json)
+    if as_json:
+        print_json(drive_summary(prepared, written))
+    elif not quiet:
+        click.echo(format_written(prepared, written, inch))
+    caution()
 
 
 def write_with_progress(prepared, quiet: bool) -> dict:
     """Write a prepared drive, with a progress bar on a terminal and clean removal on SIGTERM."""
+    from vibsynth import jobs as drive_job
+
     with progress_for(prepared, quiet) as progress:
-        return drive_job.write_prepared_drive(prepared, progress)
+        written = drive_job.write_prepared_drive(prepared, progress)
+    mark_drive_written()
+    note(f"wrote {prepared.request.output}")
+    return written
 
 
 @contextlib.contextmanager
@@ -175,12 +165,58 @@ def progress_for(prepared, quiet: bool):
     """A progress callback for writing ``prepared`` (a bar on a terminal), with clean removal on SIGTERM."""
     total = prepared.plan.total_samples
     show = is_interactive_stderr() and not quiet and total >= PROGRESS_MIN_SAMPLES
+    note(f"writing {prepared.request.output}: {total} samples, {prepared.plan.mode}, {prepared.passes} pass(es)")
     with _terminate_as_interrupt(), Progress(show, prepared.passes * total, "generating") as progress:
         yield progress
 
 
-def format_written(prepared, written: dict) -> str:
+def drive_summary(prepared, written: dict) -> dict:
+    """What was written, as plain data for --json (keys with units; the caution and the warnings included)."""
+    from vibsynth.io import drivefile
+
+    plan, target, request = prepared.plan, prepared.profile, prepared.request
+    scaled = prepared.file_format in ("wav", "flac")
+    summary = {
+        "file": str(request.output),
+        "sidecar": str(drivefile.sidecar_path(request.output)),
+        "format": prepared.file_format,
+        "subtype": prepared.subtype,
+        "samples": plan.total_samples,
+        "rate_hz": plan.rate_hz,
+        "duration_s": plan.duration_s,
+        "seed": written.get("seed", prepared.seed),
+        "mode": plan.mode,
+        "frame_length_samples": plan.frame_length,
+        "resolution_hz": plan.resolution_hz,
+        "amplitude": plan.amplitude,
+        "loop": bool(request.loop),
+        "ramp_s": request.ramp_s if plan.ramp_in_samples else 0.0,
+        "full_scale_g": written.get("scale") if scaled else None,
+        "peak_g": written.get("peak_g"),
+        "target": {
+            "name": target.name,
+            "grms_g": target.grms,
+            "frequency_min_hz": target.frequency_min_hz,
+            "frequency_max_hz": target.frequency_max_hz,
+            "velocity_rms_m_s": target.velocity_rms_m_s,
+            "displacement_peak_to_peak_3sigma_m": target.displacement_peak_to_peak_3sigma_m,
+        },
+        "transform": None,
+        "compensation": None,
+        "warnings": list(session().warnings),
+        "caution": DRIVE_CAUTION,
+    }
+    design = getattr(prepared, "design", None)
+    if design is not None:
+        summary["transform"] = design.transform_block()
+        summary["compensation"] = design.compensation_record()
+    return summary
+
+
+def format_written(prepared, written: dict, inch: bool = False) -> str:
     """What was written, the figures a rig operator checks, and how the record was made."""
+    from vibsynth.io import drivefile
+
     plan, target, request = prepared.plan, prepared.profile, prepared.request
     side = drivefile.sidecar_path(request.output)
     file_format = prepared.file_format
@@ -191,8 +227,9 @@ def format_written(prepared, written: dict) -> str:
         f"{file_format} {prepared.subtype}{scale_text}",
         f"  target      {target.grms:.4g} g RMS ({target.name}, {target.frequency_min_hz:g}-{target.frequency_max_hz:g} Hz); "
         f"record peak {written['peak_g']:.4g} g",
-        f"  stroke      {target.displacement_peak_to_peak_3sigma_m * 1e3:.4g} mm peak-to-peak (3 sigma); "
-        f"velocity {target.velocity_rms_m_s:.4g} m/s RMS ({3 * target.velocity_rms_m_s:.4g} m/s at 3 sigma)",
+        f"  stroke      {length_text(target.displacement_peak_to_peak_3sigma_m, inch)} peak-to-peak (3 sigma); "
+        f"velocity {velocity_text(target.velocity_rms_m_s, inch)} RMS "
+        f"({velocity_text(3 * target.velocity_rms_m_s, inch)} at 3 sigma)",
         f"  generation  {plan.mode}, {'record' if plan.mode == 'periodic' else 'frames'} of {plan.frame_length} "
         f"samples ({plan.resolution_hz:.4g} Hz lines), {plan.amplitude} amplitudes, seed {prepared.seed}"
         + (", loops seamlessly" if request.loop else "")

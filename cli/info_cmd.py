@@ -6,9 +6,8 @@ import json
 
 import click
 
-from vibsynth.cli.common import load_profile
-
-METRE_PER_INCH = 0.0254  # exact (international inch, 1959)
+from vibsynth.cli import options
+from vibsynth.cli.common import METRE_PER_INCH, is_quiet, load_profile  # noqa: F401
 
 
 def _format_info(profile, inch: bool) -> str:
@@ -50,18 +49,13 @@ def _format_info(profile, inch: bool) -> str:
 
 
 @click.command()
-@click.argument("profile")
-@click.option("--json", "as_json", is_flag=True, help="Print the figures as JSON (keys: grms, velocity_rms, ...).")
-@click.option("--grms", type=float, default=None, metavar="G", help="First rescale the profile to this overall g RMS.")
+@options.profile_argument
+@options.json_output.but(help="Print the figures as JSON (keys: grms, velocity_rms, ...; SI units).")
+@options.grms.but(help="First rescale the profile to this overall g RMS.")
+@options.level_db.but(help="First shift the profile by DB decibels (e.g. -6 for a -6 dB test level: half the g RMS).")
+@options.inch.but(help="Show velocity in in/s and displacement in inches (JSON stays SI).")
 @click.option(
-    "--level-db",
-    type=float,
-    default=None,
-    metavar="DB",
-    help="First shift the profile by DB decibels (e.g. -6 for a -6 dB test level: half the g RMS).",
-)
-@click.option("--inch", is_flag=True, help="Show velocity in in/s and displacement in inches (JSON stays SI).")
-@click.option(
+    "-o",
     "--write",
     "write_path",
     type=click.Path(dir_okay=False, writable=True),
@@ -69,7 +63,8 @@ def _format_info(profile, inch: bool) -> str:
     metavar="FILE",
     help="Also write the (rescaled) profile to FILE (.toml or .csv).",
 )
-def info(profile, as_json, grms, level_db, inch, write_path):
+@options.quiet.but(help="Print nothing but requested JSON (e.g. with --write; errors still show).")
+def info(profile, as_json, grms, level_db, inch, write_path, command_quiet):
     """Overall figures of an ASD profile: g RMS, velocity, displacement, stroke.
 
     Prints each breakpoint with the slope (dB/octave) and the share of the
@@ -86,15 +81,16 @@ def info(profile, as_json, grms, level_db, inch, write_path):
         write_profile(loaded, write_path)
     if as_json:
         click.echo(json.dumps(loaded.summary(), indent=2))
-    else:
+    elif not is_quiet(command_quiet):
         click.echo(_format_info(loaded, inch))
         if write_path:
             click.echo(f"\nwrote {write_path}")
 
 
 @click.command()
-@click.option("--json", "as_json", is_flag=True, help="Print the list as JSON.")
-def presets(as_json):
+@options.json_output.but(help="Print the list as JSON.")
+@options.quiet.but(help="Print nothing but requested JSON.")
+def presets(as_json, command_quiet):
     """List the bundled demo profiles (invented scenarios) with band and g RMS."""
     from vibsynth.profile.files import preset_names, read_preset
 
@@ -112,6 +108,8 @@ def presets(as_json):
         )
     if as_json:
         click.echo(json.dumps(rows, indent=2))
+        return
+    if is_quiet(command_quiet):
         return
     width = max(len(row["name"]) for row in rows)
     click.echo(f"{'name':<{width}}  {'band (Hz)':>12}  {'g RMS':>7}  description")

@@ -6,9 +6,9 @@ import json
 
 import click
 
-from vibsynth.cli.common import Progress, is_interactive_stderr, json_safe, load_profile, warn
-from vibsynth import peaks as peak_stats
-from vibsynth.generate.nongaussian import plan_transform
+from vibsynth._checks import RATE_MARGIN_FACTOR, default_rate_hz
+from vibsynth.cli import options
+from vibsynth.cli.common import Progress, is_interactive_stderr, is_quiet, json_safe, load_profile, note, warn
 
 #: Above this many samples to synthesize in the Monte-Carlo, a runtime warning is printed.
 MC_WARN_SAMPLES = 200_000_000
@@ -30,6 +30,8 @@ def _peak_cell(peak, rms_g: float) -> str:
 
 def format_report(report) -> str:
     """The peak table as text: largest peak, crest factor and exceedances, theory beside Monte-Carlo."""
+    from vibsynth import peaks as peak_stats
+
     profile = report.profile
     lines = [
         f"Peaks of a {report.duration_s:g} s drive of {profile.name} ({profile.grms:.4g} g RMS, "
@@ -96,27 +98,24 @@ def format_report(report) -> str:
 
 
 @click.command()
-@click.argument("profile")
-@click.option("--duration", required=True, type=click.FloatRange(min=0, min_open=True), metavar="S",
-              help="Duration of the drive in seconds (the largest peak grows with it).")
-@click.option("--rate", type=click.FloatRange(min=0, min_open=True), default=None, metavar="HZ",
-              help="Sample rate of the records, Hz. Default: 2.56 x the top frequency rounded up to 256 Hz. "
-                   "Lower rates run the Monte-Carlo faster; the 'samples' theory follows the rate.")
-@click.option("--kurtosis", type=float, default=None, metavar="K", help="Add a row for a drive with this kurtosis.")
-@click.option("--skewness", type=float, default=None, metavar="S", help="Add a row for a drive with this skewness.")
-@click.option("--clip", type=float, default=None, metavar="SIGMA",
-              help="Add a row for a drive clipped at SIGMA x RMS (not with --kurtosis/--skewness).")
-@click.option("--records", type=click.IntRange(min=0), default=peak_stats.DEFAULT_RECORDS, show_default=True,
-              metavar="N", help="Monte-Carlo records per row (0: theory only).")
-@click.option("--seed", type=click.IntRange(min=0), default=0, show_default=True, metavar="N",
-              help="Seed of the Monte-Carlo (record i uses spawn key i).")
-@click.option("--amplitude", type=click.Choice(["fixed", "rayleigh"]), default="fixed", show_default=True,
-              help="Line amplitudes of the Monte-Carlo records, as for `vibsynth generate`.")
-@click.option("--grms", type=click.FloatRange(min=0, min_open=True), default=None, metavar="G",
-              help="Rescale the profile to this overall g RMS first.")
-@click.option("--level-db", type=float, default=None, metavar="DB", help="Shift the profile by DB decibels first.")
-@click.option("--json", "as_json", is_flag=True, help="Print the result as JSON.")
-def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, amplitude, grms, level_db, as_json):
+@options.profile_argument
+@options.duration.but(help="Duration of the drive in seconds (the largest peak grows with it).")
+@options.rate_defaulted.but(help="Sample rate of the records, Hz. Default: the smallest common rate (1024, 2048, "
+                                 f"4096, 5120, 8192, ... Hz) at least {RATE_MARGIN_FACTOR:g} x the top frequency, "
+                                 "as for `vibsynth run`. Lower rates run the Monte-Carlo faster; the 'samples' "
+                                 "theory follows the rate.")
+@options.kurtosis.but(help="Add a row for a drive with this kurtosis.")
+@options.skewness.but(help="Add a row for a drive with this skewness.")
+@options.clip.but(help="Add a row for a drive clipped at SIGMA x RMS (not with --kurtosis/--skewness).")
+@options.records
+@options.seed.but(default=0, show_default=True, help="Seed of the Monte-Carlo (record i uses spawn key i).")
+@options.amplitude.but(help="Line amplitudes of the Monte-Carlo records, as for `vibsynth generate`.")
+@options.grms
+@options.level_db
+@options.json_output
+@options.quiet.but(help="No table and no progress bar (warnings and errors still show; --json still prints).")
+def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, amplitude, grms, level_db, as_json,
+          command_quiet):
     """How high will the peaks go? Largest peak, exceedances and crest factor of PROFILE's drive.
 
     For a drive of --duration seconds: the expected largest |x| with its
@@ -141,17 +140,22 @@ def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, ampl
     take long: the Monte-Carlo synthesizes records x rows x duration x rate
     samples (a warning says when that is large; lower --records or --rate).
     """
+    from vibsynth import peaks as peak_stats
+    from vibsynth.generate.nongaussian import plan_transform
+
+    quiet = is_quiet(command_quiet)
     target = load_profile(profile, grms, level_db)
     transform = plan_transform(kurtosis, skewness, clip)
-    rate_hz = peak_stats.default_rate_hz(target) if rate is None else rate
+    rate_hz = default_rate_hz(target.frequency_max_hz) if rate is None else rate
+    note(f"rate {rate_hz:g} Hz" + (" (the smallest common rate >= 2.56 x the top frequency)" if rate is None else ""))
     rows = 1 if transform is None else 2
     per_record = int(round(duration * rate_hz))
     total = records * rows * per_record
     if total > MC_WARN_SAMPLES:
         warn(f"the Monte-Carlo synthesizes {total / 1e6:.0f} million samples ({records} records x {rows} rows x "
              f"{per_record / 1e6:.3g} million); this can take many minutes; lower --records or --rate "
-             f"(at least {peak_stats.DEFAULT_RATE_FACTOR:g} x {target.frequency_max_hz:g} Hz) to shorten it")
-    show = is_interactive_stderr() and not as_json and total > 0
+             f"(at least {RATE_MARGIN_FACTOR:g} x {target.frequency_max_hz:g} Hz) to shorten it")
+    show = is_interactive_stderr() and not as_json and not quiet and total > 0
     with Progress(show, total, "Monte-Carlo") as progress:
         report = peak_stats.peak_report(target, duration, rate_hz, transform=transform, records=records, seed=seed,
                                         amplitude=amplitude, progress=progress)
@@ -159,7 +163,7 @@ def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, ampl
         warn(message)
     if as_json:
         click.echo(json.dumps(json_safe(report.to_dict()), indent=2, allow_nan=False))
-    else:
+    elif not quiet:
         click.echo(format_report(report))
 
 

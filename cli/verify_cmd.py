@@ -1,33 +1,18 @@
-"""`vibsynth verify` (judge a drive file against its target) and `vibsynth run` (the whole job)."""
+"""`vibsynth verify`: judge a drive file against its target (and the verification pieces `vibsynth run` uses)."""
 
 from __future__ import annotations
 
 import json
-import math
 from pathlib import Path
 
 import click
 
-from vibsynth.cli.common import load_profile, warn
-from vibsynth.errors import InputError
+from vibsynth.cli import options
+from vibsynth.cli.common import is_quiet, load_profile, note, warn
+from vibsynth.cli.types import ProfileSpec, parse_tolerance  # noqa: F401  (parse_tolerance: used by run)
 
-def parse_tolerance(text: str) -> tuple[float, float]:
-    """``"3"`` -> (-3, +3); ``"-2,3"`` or ``"-2:+3"`` -> (-2, +3) (dB)."""
-    cleaned = text.replace(":", ",").replace(" ", "")
-    try:
-        parts = [float(p) for p in cleaned.split(",") if p != ""]
-    except ValueError:
-        raise InputError(f"'{text}' is not a tolerance; give DB (e.g. 3 for +/-3 dB) or LOW,HIGH (e.g. -2,3)", "--tolerance") from None
-    if len(parts) == 1:
-        value = abs(parts[0])
-        low, high = -value, value
-    elif len(parts) == 2:
-        low, high = parts
-    else:
-        raise InputError(f"'{text}' has {len(parts)} numbers; give DB or LOW,HIGH", "--tolerance")
-    if not (math.isfinite(low) and math.isfinite(high) and low < 0 < high):
-        raise InputError(f"'{text}': the band needs a negative lower and a positive upper limit in dB", "--tolerance")
-    return low, high
+#: Samples per chunk read from a drive file.
+READ_CHUNK_SAMPLES = 1 << 18
 
 
 def format_compensation(block: dict) -> str:
@@ -98,45 +83,31 @@ def format_verification(result, name: str) -> str:
     return "\n".join(lines)
 
 
-_tolerance_option = click.option(
-    "--tolerance", default="3", show_default=True, metavar="DB|LOW,HIGH",
-    help="ASD tolerance band in dB: 3 for ±3 dB, or LOW,HIGH such as -2,3 "
-         "(±3 dB is widespread test-specification practice).")
-_grms_tolerance_option = click.option(
-    "--grms-tolerance", type=click.FloatRange(min=0, max=100, min_open=True, max_open=True), default=10.0,
-    show_default=True, metavar="PCT", help="g RMS tolerance in percent (±10 % is widespread practice).")
-_min_fraction_option = click.option(
-    "--min-fraction", type=click.FloatRange(min=0, max=1, min_open=True), default=1.0, show_default=True,
-    metavar="F", help="Pass when at least this fraction of judged lines is in tolerance (1: every line; "
-                      "lower values relax the rule and the report says so).")
-_resolution_option = click.option(
-    "--resolution", type=click.FloatRange(min=0, min_open=True), default=None, metavar="HZ",
-    help="Welch line spacing in Hz (default: the finest giving --dof).")
-_dof_option = click.option(
-    "--dof", type=click.FloatRange(min=2), default=None, metavar="N",
-    help="Statistical degrees of freedom to aim at (default 120; a warning says when the record is too short).")
+#: The verification options, declared once in :mod:`vibsynth.cli.options` (shared with `vibsynth run`).
+_tolerance_option = options.tolerance
+_grms_tolerance_option = options.grms_tolerance
+_min_fraction_option = options.min_fraction
+_resolution_option = options.welch_resolution
+_dof_option = options.dof
 
 
 @click.command()
 @click.argument("file")
-@click.option("--profile", "profile_spec", default=None, metavar="PROFILE",
-              help="Target profile (file or preset). Default: the profile recorded in FILE's sidecar.")
-@click.option("--level-db", type=float, default=None, metavar="DB",
-              help="Shift the --profile target by DB decibels first (e.g. -6 for a -6 dB run).")
-@_tolerance_option
-@_grms_tolerance_option
-@_min_fraction_option
-@_resolution_option
-@_dof_option
-@click.option("--rate", type=click.FloatRange(min=0, min_open=True), default=None, metavar="HZ",
-              help="Sample rate, for a .csv/.npy without a sidecar (must agree with a sidecar).")
-@click.option("--scale", type=click.FloatRange(min=0, min_open=True), default=None, metavar="G",
+@click.option("--profile", "profile_spec", type=ProfileSpec(), default=None, metavar="PROFILE",
+              help="Target profile (file, preset, or - for stdin). Default: the profile recorded in FILE's sidecar.")
+@options.level_db.but(help="Shift the --profile target by DB decibels first (e.g. -6 for a -6 dB run).")
+@options.apply(*options.VERIFY_OPTIONS)
+@options.rate.but(required=False, default=None,
+                  help="Sample rate in Hz, for a .csv/.npy without a sidecar (must agree with a sidecar).")
+@click.option("--scale", type=options.types.positive(), default=None, metavar="G",
               help="g value of full scale 1.0, for a .wav/.flac without a sidecar.")
-@click.option("--json", "as_json", is_flag=True, help="Print the result as JSON.")
-@click.option("--report", "report_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
-              help="Write figures (PNG), a multi-page PDF and verify.json into DIR.")
+@options.json_output.but(help="Print the result as JSON on stdout (the published keys: pass, grms_target, asd, "
+                              "statistics, ...).")
+@click.option("-o", "--report", "report_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
+              help="Write figures (PNG), a multi-page PDF and verify.json into the folder DIR.")
+@options.quiet.but(help="No text report (only the exit status; warnings and errors still show; --json still prints).")
 def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction, resolution, dof, rate, scale, as_json,
-           report_dir):
+           report_dir, command_quiet):
     """Judge a drive file against its target ASD: exit 0 pass, 1 fail, 2 bad input.
 
     Re-estimates the ASD by Welch's method (Hann, 50 % overlap) from the file
@@ -156,6 +127,7 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
         raise click.UsageError("--level-db shifts a --profile target; give --profile too")
     target = load_profile(profile_spec, level_db=level_db) if profile_spec else jobs.drive_target(drive)
     criteria = jobs.drive_criteria(drive, parse_tolerance(tolerance), grms_tolerance, min_fraction)
+    note(f"verifying {file} ({drive.samples} samples at {drive.rate_hz:g} Hz) against {target.name}")
     result = jobs.verify_drive(drive, target, criteria, resolution, dof)
     if result.segment_message:
         warn(result.segment_message)
@@ -165,7 +137,7 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
         data["report"] = jobs.write_verify_report(result, drive, report_dir, str(file), data)
     if as_json:
         click.echo(json.dumps(data, indent=2, allow_nan=False))
-    else:
+    elif not is_quiet(command_quiet):
         click.echo(format_verification(result, Path(file).name))
         if compensation is not None:
             click.echo(format_compensation(compensation))

@@ -30,7 +30,6 @@ from __future__ import annotations
 
 import importlib
 
-from vibsynth._version import __version__
 from vibsynth.errors import InputError, OutOfRangeError, VibsynthWarning
 
 #: Public name -> module that defines it (imported on first access).
@@ -48,6 +47,11 @@ __all__ = sorted([*_LAZY, "InputError", "OutOfRangeError", "VibsynthWarning", "_
 
 
 def __getattr__(name: str):
+    if name == "__version__":  # read from the metadata on first use (importlib.metadata is slow to import)
+        from vibsynth._version import __version__
+
+        globals()["__version__"] = __version__
+        return __version__
     module = _LAZY.get(name)
     if module is None:
         raise AttributeError(f"module 'vibsynth' has no attribute {name!r}")

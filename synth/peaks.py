@@ -71,6 +71,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import special
 
+from vibsynth._checks import DEFAULT_PEAK_RECORDS, RATE_MARGIN_FACTOR
+from vibsynth._checks import default_rate_hz as _default_rate_hz
 from vibsynth.errors import InputError
 from vibsynth.analysis.extremes import (
     LargestPeak,
@@ -110,8 +112,8 @@ __all__ = [
 #: Levels (multiples of the RMS) of the exceedance table.
 K_SIGMA_LEVELS = (1.0, 2.0, 3.0, 4.0, 5.0, 6.0)
 
-#: Monte-Carlo records by default.
-DEFAULT_RECORDS = 20
+#: Monte-Carlo records by default (the command line shows the same constant).
+DEFAULT_RECORDS = DEFAULT_PEAK_RECORDS
 
 #: The Monte-Carlo mean of the largest peak lies within 3 standard errors of the
 #: records' scatter plus this fraction of the sampled-theory mean (model error of
@@ -136,11 +138,14 @@ _LEVEL_SLACK = 1e-9
 #: Points of the level grid the largest-peak distribution is integrated on.
 
 #: Sample-rate multiple of the top frequency used by default (common practice, no source).
-DEFAULT_RATE_FACTOR = 2.56
+DEFAULT_RATE_FACTOR = RATE_MARGIN_FACTOR
 
 
 def default_rate_hz(profile: AsdProfile) -> float:
-    """Default Monte-Carlo rate: 2.56 x the top frequency, rounded up to a multiple of 256 Hz.
+    """Default Monte-Carlo rate: the one default-rate rule of the package (:func:`vibsynth._checks.default_rate_hz`).
+
+    The smallest common rate (1024, 2048, 4096, 5120, 8192, ... Hz) at least
+    2.56 x the top frequency, as ``vibsynth run`` uses.
 
     Parameters
     ----------
@@ -151,11 +156,17 @@ def default_rate_hz(profile: AsdProfile) -> float:
     float
         Sample rate in Hz.
 
+    Examples
+    --------
+    >>> from vibsynth.profile.files import read_profile
+    >>> default_rate_hz(read_profile("bench-flat"))
+    5120.0
+
     References
     ----------
     2.56 x the top frequency is common practice for anti-alias margins (no source).
     """
-    return float(256 * math.ceil(DEFAULT_RATE_FACTOR * profile.frequency_max_hz / 256.0))
+    return _default_rate_hz(profile.frequency_max_hz)
 
 
 # ---------------------------------------------------------------------------

@@ -1,0 +1,132 @@
+"""Options declared once and applied to every command that takes them.
+
+``generate`` and ``run`` share the drive options (duration, rate, seed,
+amplitude, ramp, rig limits, rescaling, non-Gaussian targets); ``verify`` and
+``run`` share the verification options; every reporting command shares
+``--json``, ``--inch`` and ``--quiet``.  A command that needs a variant (``run``
+defaults the duration and the rate where ``generate`` requires them) derives it
+with :meth:`SharedOption.but`, so the name, type and help stay in one place.
+"""
+
+from __future__ import annotations
+
+import click
+
+from vibsynth._checks import AMPLITUDE_MODES, DEFAULT_PEAK_RECORDS, RATE_MARGIN_FACTOR
+from vibsynth.cli import types
+
+
+class SharedOption:
+    """A click option declaration that can decorate several commands, or be derived with changes."""
+
+    def __init__(self, *declarations: str, **attributes):
+        self.declarations = declarations
+        self.attributes = attributes
+
+    def __call__(self, function):
+        return click.option(*self.declarations, **self.attributes)(function)
+
+    def but(self, **changes) -> "SharedOption":
+        """The same option with some attributes changed (e.g. a default instead of ``required``)."""
+        return SharedOption(*self.declarations, **{**self.attributes, **changes})
+
+
+def apply(*options):
+    """Decorate a command with several options, in the order given (as they show in --help)."""
+
+    def decorate(function):
+        for option in reversed(options):
+            function = option(function)
+        return function
+
+    return decorate
+
+
+# ------------------------------------------------------------------ common to reporting commands
+json_output = SharedOption("--json", "as_json", is_flag=True,
+                           help="Print the result as JSON on stdout (keys carry their unit: rate_hz, duration_s).")
+inch = SharedOption("--inch", is_flag=True,
+                    help="Print velocity in in/s and displacement in inches, and read --stroke-limit and "
+                         "--velocity-limit in those units (JSON stays SI).")
+quiet = SharedOption("-q", "--quiet", "command_quiet", is_flag=True,
+                     help="No summary and no progress bar (warnings, errors and the drive-file caution still show; "
+                          "same as `vibsynth -q`).")
+
+# ------------------------------------------------------------------ the profile
+profile_argument = click.argument("profile", type=types.ProfileSpec())
+grms = SharedOption("--grms", type=types.positive(), default=None, metavar="G",
+                    help="Rescale the profile to this overall g RMS first.")
+level_db = SharedOption("--level-db", type=types.FINITE, default=None, metavar="DB",
+                        help="Shift the profile by DB decibels first (-6 dB: half the g RMS).")
+
+# ------------------------------------------------------------------ a drive (generate, run)
+duration = SharedOption("--duration", required=True, type=types.positive(), metavar="S",
+                        help="Duration of the drive in seconds.")
+rate = SharedOption("--rate", required=True, type=types.positive(), metavar="HZ",
+                    help="Sample rate in Hz; must exceed twice the profile's top frequency "
+                         f"({RATE_MARGIN_FACTOR:g} x is the usual margin).")
+#: --rate where it may be omitted (run, peaks): the one default-rate rule.
+rate_defaulted = rate.but(required=False, default=None,
+                          help="Sample rate in Hz. Default: the smallest common rate (1024, 2048, 4096, 5120, "
+                               f"8192, ... Hz) at least {RATE_MARGIN_FACTOR:g} x the profile's top frequency.")
+seed = SharedOption("--seed", type=click.IntRange(min=0), default=None, metavar="N",
+                    help="Seed of the random phases; same seed and options give identical samples. "
+                         "Default: a fresh one, recorded in the sidecar.")
+amplitude = SharedOption(
+    "--amplitude", type=click.Choice(AMPLITUDE_MODES), default="fixed", show_default=True,
+    help="fixed: random phases with line amplitudes fixed by the target, so every frame's periodogram "
+         "is the target and the re-estimated ASD sits tightly inside tolerance bands (the default, as "
+         "drive files are judged against those bands). rayleigh: Gaussian line amplitudes, making each "
+         "record a true Gaussian realisation with the usual chi-square scatter (for statistical studies).")
+ramp = SharedOption("--ramp", "ramp_s", type=types.FiniteFloatRange(min=0), default=0.0, metavar="S",
+                    help="Raised-cosine fade-in and fade-out of S seconds each, so the rig never sees a step; "
+                         "the sidecar records them and verification judges the steady part.")
+stroke_limit = SharedOption("--stroke-limit", type=types.positive(), default=None, metavar="MM",
+                            help="Refuse to write if the profile's 3-sigma displacement (peak-to-peak) exceeds MM "
+                                 "(inches with --inch).")
+velocity_limit = SharedOption("--velocity-limit", type=types.positive(), default=None, metavar="M_S",
+                              help="Refuse to write if the profile's 3-sigma velocity (peak) exceeds M_S m/s "
+                                   "(in/s with --inch).")
+kurtosis = SharedOption(
+    "--kurtosis", type=types.FINITE, default=None, metavar="K",
+    help="Non-Gaussian drive with this kurtosis (3 is Gaussian; field vibration is often 4 to 8), by a "
+         "cubic Hermite transform of the Gaussian stream, its spectrum pre-compensated so the ASD still "
+         "meets the target. Below 3 (and for some skewed targets) the inverse (hardening) form is used. "
+         "Out-of-range values are refused with the reachable range.")
+skewness = SharedOption("--skewness", type=types.FINITE, default=None, metavar="S",
+                        help="Non-Gaussian drive with this skewness (0 is symmetric), as --kurtosis; alone it keeps "
+                             "the kurtosis at 3.")
+clip = SharedOption(
+    "--clip", type=types.FINITE, default=None, metavar="SIGMA",
+    help="Hold every sample within SIGMA x the drive's RMS (the target g RMS), e.g. 3: the Gaussian "
+         "stream is clipped and rescaled, its spectrum pre-compensated so the ASD still meets the target. "
+         "Cannot be combined with --kurtosis/--skewness.")
+
+#: The drive options of `generate`, in help order; `run` applies the same objects (with defaults).
+DRIVE_OPTIONS = (duration, rate, seed, amplitude, ramp, stroke_limit, velocity_limit, grms, level_db,
+                 kurtosis, skewness, clip)
+
+# ------------------------------------------------------------------ verification (verify, run)
+tolerance = SharedOption(
+    "--tolerance", type=types.ToleranceBand(), default="3", show_default=True, metavar="DB|LOW,HIGH",
+    help="ASD tolerance band in dB: 3 for ±3 dB, or LOW,HIGH such as -2,3 "
+         "(±3 dB is widespread test-specification practice).")
+grms_tolerance = SharedOption(
+    "--grms-tolerance", type=types.FiniteFloatRange(min=0, max=100, min_open=True, max_open=True), default=10.0,
+    show_default=True, metavar="PCT", help="g RMS tolerance in percent (±10 % is widespread practice).")
+min_fraction = SharedOption(
+    "--min-fraction", type=types.FiniteFloatRange(min=0, max=1, min_open=True), default=1.0, show_default=True,
+    metavar="F", help="Pass when at least this fraction of judged lines is in tolerance (1: every line; "
+                      "lower values relax the rule and the report says so).")
+welch_resolution = SharedOption(
+    "--resolution", type=types.positive(), default=None, metavar="HZ",
+    help="Welch line spacing in Hz (default: the finest giving --dof).")
+dof = SharedOption(
+    "--dof", type=types.FiniteFloatRange(min=2), default=None, metavar="N",
+    help="Statistical degrees of freedom to aim at (default 120; a warning says when the record is too short).")
+
+VERIFY_OPTIONS = (tolerance, grms_tolerance, min_fraction, welch_resolution, dof)
+
+# ------------------------------------------------------------------ peaks
+records = SharedOption("--records", type=click.IntRange(min=0), default=DEFAULT_PEAK_RECORDS, show_default=True,
+                       metavar="N", help="Monte-Carlo records per row (0: theory only).")
