@@ -9,7 +9,7 @@ import click
 
 from vibsynth.cli.common import DRIVE_CAUTION, Progress, is_interactive_stderr, load_profile, warn
 from vibsynth import jobs as drive_job
-from vibsynth.generate import pipeline as synthesis
+from vibsynth.generate import plan as synthesis
 from vibsynth.io import drivefile
 
 #: Records longer than this many samples show a progress bar (on a terminal).

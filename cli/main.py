@@ -77,6 +77,25 @@ def _one_line(text: str) -> str:
     return " ".join(str(text).split())
 
 
+#: Library parameter names (as InputError sources) -> the options the user typed.
+_OPTION_OF_PARAMETER = {
+    "stroke_limit_mm": "--stroke-limit",
+    "velocity_limit_m_s": "--velocity-limit",
+    "clip": "--clip",
+    "kurtosis": "--kurtosis",
+    "skewness": "--skewness",
+    "memory_budget_bytes": "--memory-budget",
+}
+
+
+def _as_option(error: InputError) -> InputError:
+    """The error with its source named as the command-line option (library errors name parameters)."""
+    option = _OPTION_OF_PARAMETER.get(error.source)
+    if option is not None:
+        error.source = option
+    return error
+
+
 def main(argv: list[str] | None = None) -> int:
     """Entry point of the console script; returns (and exits with) the status code.
 
@@ -87,7 +106,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         status = cli.main(args=argv, prog_name=prog, standalone_mode=False)
     except InputError as error:
-        click.echo(f"{prog}: error: {error.one_line()}", err=True)
+        click.echo(f"{prog}: error: {_as_option(error).one_line()}", err=True)
         status = 2
     except click.exceptions.Exit as done:
         status = done.exit_code

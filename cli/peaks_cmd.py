@@ -8,7 +8,7 @@ import click
 
 from vibsynth.cli.common import Progress, is_interactive_stderr, json_safe, load_profile, warn
 from vibsynth import peaks as peak_stats
-from vibsynth.generate.nongaussian import plan_transform
+from vibsynth.transforms.choice import plan_transform
 
 #: Above this many samples to synthesize in the Monte-Carlo, a runtime warning is printed.
 MC_WARN_SAMPLES = 200_000_000

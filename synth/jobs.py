@@ -7,7 +7,7 @@ can be remade from its seed), and writes atomically through
 :func:`vibsynth.io.drivefile.write_drive`.
 
 A request for a kurtosis, skewness or clip level makes a non-Gaussian drive
-(:mod:`vibsynth.generate.nongaussian`): the Gaussian plan's spectrum is pre-compensated,
+(:mod:`vibsynth.generate.design`): the Gaussian plan's spectrum is pre-compensated,
 the memoryless transform is applied to the Gaussian stream after overlap-add,
 the output is scaled to the target g RMS and only then ramped.  The sidecar
 then carries ``transform`` and ``compensation`` blocks.
@@ -22,8 +22,10 @@ import numpy as np
 import scipy
 
 from vibsynth import __version__
-from vibsynth.generate import nongaussian
-from vibsynth.generate import pipeline as synthesis
+from vibsynth.generate import design as nongaussian
+from vibsynth.generate import pipeline
+from vibsynth.generate import plan as synthesis
+from vibsynth.transforms.choice import plan_transform
 from vibsynth.io import drivefile
 from vibsynth.errors import InputError
 from vibsynth.profile.asd import AsdProfile
@@ -136,7 +138,7 @@ class PreparedDrive:
     request: DriveRequest
     profile: AsdProfile
     plan: synthesis.SynthesisPlan
-    synthesizer: synthesis.Synthesizer
+    synthesizer: pipeline.Synthesizer
     file_format: str
     subtype: str
     sidecar: dict
@@ -177,7 +179,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     ----------
     Random-phase inverse-FFT synthesis (Shinozuka & Deodatis 1991, Appl. Mech.
     Rev. 44(4)); see :mod:`vibsynth.generate.pipeline`.  Non-Gaussian drives: Winterstein
-    (1988), Yamazaki & Shinozuka (1988); see :mod:`vibsynth.generate.nongaussian`.
+    (1988), Yamazaki & Shinozuka (1988); see :mod:`vibsynth.generate.design`.
     """
     file_format = drivefile.drive_format(request.output)
     subtype = drivefile.check_subtype(file_format, request.subtype)
@@ -189,7 +191,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         )
     if request.full_scale_g is not None and file_format not in ("wav", "flac"):
         raise InputError(f"--full-scale applies to .wav/.flac; .{file_format} holds values in g", "--full-scale")
-    transform = nongaussian.plan_transform(request.kurtosis, request.skewness, request.clip)
+    transform = plan_transform(request.kurtosis, request.skewness, request.clip)
     if transform is not None and len(names) > 1:
         raise InputError(
             "velocity/displacement columns are integrated from Gaussian lines and cannot follow a non-Gaussian "
@@ -197,11 +199,10 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
             "--quantities",
         )
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
-    budget_bytes = int(min(request.memory_budget_mb * 2**20, usable_memory_bytes() / 2))
-    if transform is not None:
-        # a non-Gaussian periodic record also holds its spectrum for the high-pass
-        budget_bytes = budget_bytes * synthesis.PERIODIC_BYTES_PER_SAMPLE // nongaussian.PERIODIC_BYTES_PER_SAMPLE
-    plan = synthesis.plan_synthesis(
+    # the option alone picks periodic vs overlap-add (the same samples on every machine); a periodic
+    # record the machine cannot hold is refused by the planner.  Warnings are kept in plan.warnings.
+    budget_bytes = request.memory_budget_mb * 2**20
+    plan = synthesis.make_plan(
         profile,
         request.duration_s,
         request.rate_hz,
@@ -212,6 +213,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         ramp_out_s=request.ramp_s,
         quantities=names,
         memory_budget_bytes=budget_bytes,
+        transform=transform,
     )
     drivefile.check_drive_request(
         request.output, rate_hz=plan.rate_hz, samples=plan.total_samples, quantities=plan.quantities, subtype=subtype
@@ -219,15 +221,12 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     grms_lines = plan.line_variance**0.5
     design = None
     if transform is not None:
-        plan, design = nongaussian.nongaussian_plan(profile, plan, transform)
+        plan, design = nongaussian.make_nongaussian_plan(profile, plan, transform)
     seed = request.seed
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % 2**53)  # exact in any JSON reader
-    workers = default_workers() if request.workers is None else synthesis.check_workers(request.workers)
-    if design is None:
-        synthesizer = synthesis.Synthesizer(plan, seed, workers)
-    else:
-        synthesizer = design.synthesizer(plan, seed, workers)
+    workers = default_workers() if request.workers is None else request.workers
+    synthesizer = pipeline.Synthesizer(plan, seed, workers)
     sidecar = {
         "seed": seed,
         "mode": plan.mode,
@@ -273,7 +272,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         "warnings": list(plan.warnings),
         "tool": {"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__},
     }
-    if plan.spill_highpass is not None:
+    if plan.spill_highpass is not None and design is None:  # a non-Gaussian drive records it with its compensation
         sidecar["spill_highpass"] = plan.spill_highpass.to_dict()
         sidecar["seed_derivation"] += (
             f"; overlap-add: sample n is sample n + {plan.spill_highpass.half_length} of the windowed sum of frames, "
@@ -354,14 +353,3 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
         progress=step,
     )
 
-
-def usable_memory_bytes() -> float:
-    """Physical memory of this machine in bytes (POSIX sysconf); 64 GiB where it cannot be read.
-
-    A memory budget above half of it is cut to half, so a periodic record never
-    plans more than the machine can hold.
-    """
-    try:
-        return float(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES"))
-    except (AttributeError, ValueError, OSError):
-        return float(64 * 2**30)

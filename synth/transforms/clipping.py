@@ -200,6 +200,28 @@ class ClipTransform:
         return self.clip_level_sigma / self.clipped_std
 
     @property
+    def family(self) -> str:
+        """``"clip"``, as sidecars record it."""
+        return "clip"
+
+    @property
+    def peak_limit(self) -> float:
+        """Largest possible ``|apply(u)|``: the crest factor (output RMS units)."""
+        return float(self.crest_factor)
+
+    def gaussian_level(self, y) -> np.ndarray:
+        """``g^-1(y)`` in sigma of the Gaussian: ``y sigma_c`` inside ``±crest_factor``, ``±inf`` at or beyond it.
+
+        No Gaussian level reaches the far side of a clipped value, so the
+        bounds map to infinities (the record never exceeds them).
+        """
+        y = np.asarray(y, dtype=np.float64)
+        crest = self.crest_factor
+        u = y * self.clipped_std
+        u = np.where(y >= crest, np.inf, u)
+        return np.where(y <= -crest, -np.inf, u)
+
+    @property
     def series_order(self) -> int:
         """Hermite order used for correlation mapping (the series is infinite, odd orders only)."""
         return 61

@@ -489,6 +489,20 @@ class HermiteTransform:
         return self.c3 == 0.0 and self.c4 == 0.0
 
     @property
+    def family(self) -> str:
+        """``"hermite"`` (either form), as sidecars record it."""
+        return "hermite"
+
+    @property
+    def peak_limit(self) -> None:
+        """None: a cubic Hermite output is unbounded."""
+        return None
+
+    def gaussian_level(self, y) -> np.ndarray:
+        """``g^-1(y)``: the Gaussian level that maps to output level ``y`` (:meth:`inverse`, a new array)."""
+        return self.inverse(np.asarray(y, dtype=np.float64))
+
+    @property
     def series_order(self) -> int:
         """Hermite order that represents the transform for correlation mapping.
 
