@@ -82,7 +82,7 @@ from vibsynth.analysis.extremes import (
 )
 from vibsynth.generate.design import make_nongaussian_plan
 from vibsynth.generate.pipeline import Synthesizer
-from vibsynth.generate.plan import make_plan
+from vibsynth.generate.plan import RATE_MARGIN_FACTOR, make_plan
 from vibsynth.generate.seeds import root_seed_sequence, seed_entropy
 from vibsynth.profile.asd import AsdProfile
 from vibsynth.transforms.choice import gaussian_level, transform_record
@@ -134,7 +134,7 @@ _LEVEL_SLACK = 1e-9
 #: Points of the level grid the largest-peak distribution is integrated on.
 
 #: Sample-rate multiple of the top frequency used by default (common practice, no source).
-DEFAULT_RATE_FACTOR = 2.56
+DEFAULT_RATE_FACTOR = RATE_MARGIN_FACTOR
 
 
 def default_rate_hz(profile: AsdProfile) -> float:

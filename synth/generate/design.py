@@ -139,6 +139,14 @@ class NonGaussianDesign:
         for targets pre-corrected for the high-pass; else None.
     moment_retention : tuple of float or None
         (p2, p3) from :func:`highpass_moment_retention`, else None.
+
+    Examples
+    --------
+    See :func:`nongaussian_plan`, which makes one.
+
+    References
+    ----------
+    See the module docstring.
     """
 
     transform: object
@@ -362,6 +370,15 @@ def design_nongaussian(profile: AsdProfile, plan: SynthesisPlan, transform, *, c
     -------
     NonGaussianDesign
 
+    Examples
+    --------
+    >>> from vibsynth.generate.plan import plan_synthesis
+    >>> from vibsynth.transforms.choice import plan_transform
+    >>> profile = AsdProfile([20, 40, 600, 1000], [0.01, 0.04, 0.04, 0.01])
+    >>> design = design_nongaussian(profile, plan_synthesis(profile, 4.0, 4096.0), plan_transform(kurtosis=5.0))
+    >>> design.compensation.achievable
+    True
+
     References
     ----------
     .. [1] F. Yamazaki and M. Shinozuka, "Digital generation of non-Gaussian
@@ -463,7 +480,21 @@ def nongaussian_plan(profile: AsdProfile, plan: SynthesisPlan, transform=None, *
 
 
 def make_nongaussian_plan(profile: AsdProfile, plan: SynthesisPlan, transform=None, **compensation_options):
-    """:func:`nongaussian_plan` without issuing warnings (they are in ``plan.warnings``)."""
+    """:func:`nongaussian_plan` without issuing warnings (they are in ``plan.warnings``).
+
+    Examples
+    --------
+    >>> from vibsynth.generate.plan import plan_synthesis
+    >>> from vibsynth.transforms.choice import plan_transform
+    >>> profile = AsdProfile([20, 40, 600, 1000], [0.01, 0.04, 0.04, 0.01])
+    >>> plan, _ = make_nongaussian_plan(profile, plan_synthesis(profile, 4.0, 4096.0), plan_transform(clip=3.0))
+    >>> plan.transform.family
+    'clip'
+
+    References
+    ----------
+    See the module docstring.
+    """
     transform = plan.transform if transform is None else transform
     if transform is None:
         raise InputError("a non-Gaussian plan needs a transform (kurtosis, skewness or clip)", "transform")

@@ -37,7 +37,7 @@ from vibsynth.errors import InputError
 AMPLITUDE_MODES = ("fixed", "rayleigh")
 
 
-def check_choice(value, allowed: Sequence[str], what: str) -> str:
+def _check_choice(value, allowed: Sequence[str], what: str) -> str:
     """``value`` as a lower-case member of ``allowed``, else an InputError naming ``what``."""
     text = str(value).strip().lower()
     if text not in allowed:
@@ -63,19 +63,24 @@ def line_amplitudes(line_spectrum, rate_hz: float, frame_length: int) -> np.ndar
     numpy.ndarray, shape (N//2 + 1,)
         Magnitudes in U (times N), zero at DC and Nyquist.
 
+    Examples
+    --------
+    >>> line_amplitudes([0.0, 1.0, 1.0, 0.0], 6.0, 6)
+    array([0.        , 4.24264069, 4.24264069, 0.        ])
+
     References
     ----------
     Shinozuka & Jan (1972), spectral representation; the discrete Parseval
     relation of the DFT.
     """
-    spectrum = clean_line_spectrum(line_spectrum, frame_length)
+    spectrum = _clean_line_spectrum(line_spectrum, frame_length)
     df = float(rate_hz) / frame_length
     return frame_length * np.sqrt(spectrum * df / 2.0)
 
 
 
 
-def clean_line_spectrum(line_spectrum, frame_length: int) -> np.ndarray:
+def _clean_line_spectrum(line_spectrum, frame_length: int) -> np.ndarray:
     spectrum = np.array(line_spectrum, dtype=float).ravel()
     if spectrum.size != frame_length // 2 + 1:
         raise InputError(
@@ -90,7 +95,7 @@ def clean_line_spectrum(line_spectrum, frame_length: int) -> np.ndarray:
     return spectrum
 
 
-def band_of(amplitudes: np.ndarray) -> tuple[int, int]:
+def _band_of(amplitudes: np.ndarray) -> tuple[int, int]:
     """Index range [lo, hi) holding every non-zero line."""
     nonzero = np.flatnonzero(amplitudes)
     if nonzero.size == 0:
@@ -98,7 +103,7 @@ def band_of(amplitudes: np.ndarray) -> tuple[int, int]:
     return int(nonzero[0]), int(nonzero[-1]) + 1
 
 
-def draw_lines(rng: np.random.Generator, amplitudes: np.ndarray, amplitude: str, band=None) -> np.ndarray:
+def _draw_lines(rng: np.random.Generator, amplitudes: np.ndarray, amplitude: str, band=None) -> np.ndarray:
     """Complex line values: a normal pair per line, scaled (rayleigh) or normalised (fixed).
 
     Every line draws its pair (so the draws do not depend on the spectrum);
@@ -106,7 +111,7 @@ def draw_lines(rng: np.random.Generator, amplitudes: np.ndarray, amplitude: str,
     """
     spectrum = np.empty(amplitudes.size, dtype=np.complex128)
     rng.standard_normal(out=spectrum.view(np.float64))
-    lo, hi = band_of(amplitudes) if band is None else band
+    lo, hi = _band_of(amplitudes) if band is None else band
     spectrum[:lo] = 0.0
     spectrum[hi:] = 0.0
     part = spectrum[lo:hi]
@@ -147,18 +152,24 @@ def synthesize_frame(line_spectrum, rate_hz: float, rng: np.random.Generator, am
     numpy.ndarray, shape (N,)
         The frame in U (e.g. g).
 
+    Examples
+    --------
+    >>> frame = synthesize_frame(np.r_[0.0, np.ones(7), 0.0], 16.0, np.random.default_rng(1))
+    >>> round(float(np.var(frame)), 12)  # sum S df over the 7 lines, df = 1 Hz
+    7.0
+
     References
     ----------
     Shinozuka & Jan (1972); numpy/scipy ``irfft`` normalisation (backward:
     ``x_n = (1/N) sum_k X_k exp(2 pi i k n / N)``).
     """
-    amplitude = check_choice(amplitude, AMPLITUDE_MODES, "amplitude")
+    amplitude = _check_choice(amplitude, AMPLITUDE_MODES, "amplitude")
     spectrum = np.asarray(line_spectrum, dtype=float)
     frame_length = 2 * (spectrum.size - 1)
     if frame_length < 2:
         raise InputError("line spectrum needs at least two values", "line_spectrum")
     amplitudes = line_amplitudes(spectrum, rate_hz, frame_length)
-    lines = draw_lines(rng, amplitudes, amplitude)
+    lines = _draw_lines(rng, amplitudes, amplitude)
     return scipy.fft.irfft(lines, n=frame_length, overwrite_x=True)
 
 
@@ -174,6 +185,12 @@ def sine_window(frame_length: int) -> np.ndarray:
     -------
     numpy.ndarray, shape (N,)
         Window values (dimensionless).
+
+    Examples
+    --------
+    >>> w = sine_window(8)
+    >>> bool(np.allclose(w[:4] ** 2 + w[4:] ** 2, 1.0))
+    True
 
     References
     ----------
@@ -195,6 +212,11 @@ def raised_cosine_ramp(length_samples: int) -> np.ndarray:
     -------
     numpy.ndarray, shape (R,)
         Factors (dimensionless); reverse them for the fade-out.
+
+    Examples
+    --------
+    >>> raised_cosine_ramp(4)
+    array([0.        , 0.14644661, 0.5       , 0.85355339])
 
     References
     ----------

@@ -96,6 +96,12 @@ class SpillHighpass:
     Periodic: the lines below the stop edge are set to 0, those above the pass
     edge kept, with a raised-cosine transition between.
 
+    Examples
+    --------
+    >>> highpass = SpillHighpass(pass_edge_hz=19.0, stop_edge_hz=12.0, rate_hz=5120.0, half_length=4096)
+    >>> float(highpass.response(0.0)), abs(float(highpass.response(100.0)) - 1.0) < 1e-3
+    (0.0, True)
+
     References
     ----------
     .. [1] J. F. Kaiser, "Nonrecursive digital filter design using the I0-sinh

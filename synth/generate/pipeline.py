@@ -62,7 +62,7 @@ import scipy.fft
 from vibsynth.errors import InputError
 from vibsynth.generate._threads import check_workers, frame_workers, ordered_map
 from vibsynth.generate.design import make_nongaussian_plan
-from vibsynth.generate.frames import draw_lines, raised_cosine_ramp
+from vibsynth.generate.frames import _draw_lines, raised_cosine_ramp
 from vibsynth.generate.highpass import PartitionedHighpass, block_highpass, periodic_highpass
 from vibsynth.generate.plan import (
     DEFAULT_MEMORY_BUDGET_BYTES,
@@ -156,7 +156,7 @@ class Synthesizer:
             rng = child_generator(self.root, PERIODIC_STREAM)
         else:
             rng = child_generator(self.root, FRAME_STREAM, int(index))
-        return draw_lines(rng, plan._stream_amplitudes, plan.amplitude, plan._band)
+        return _draw_lines(rng, plan._stream_amplitudes, plan.amplitude, plan._band)
 
     def frame(self, index: int) -> np.ndarray:
         """Unwindowed periodic frame ``index`` (samples), before transform, scale and ramps."""

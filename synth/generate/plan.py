@@ -40,7 +40,7 @@ import numpy as np
 
 from vibsynth.errors import InputError, VibsynthWarning
 from vibsynth.generate import _memory
-from vibsynth.generate.frames import AMPLITUDE_MODES, band_of, check_choice, clean_line_spectrum, sine_window
+from vibsynth.generate.frames import AMPLITUDE_MODES, _band_of, _check_choice, _clean_line_spectrum, sine_window
 from vibsynth.generate.highpass import SpillHighpass
 from vibsynth.profile.asd import AsdProfile
 from vibsynth.transforms.base import MemorylessTransform
@@ -101,6 +101,11 @@ def profile_resolution_hz(profile: AsdProfile) -> float:
     float
         Resolution in Hz.
 
+    Examples
+    --------
+    >>> profile_resolution_hz(AsdProfile([20, 80, 2000], [0.01, 0.04, 0.04]))
+    2.5
+
     References
     ----------
     Bendat & Piersol (2010): resolution bandwidth must be narrow against the
@@ -124,6 +129,11 @@ def choose_frame_length(rate_hz: float, resolution_hz: float) -> int:
     -------
     int
         N in samples.
+
+    Examples
+    --------
+    >>> choose_frame_length(5120.0, 2.5)
+    8192
 
     References
     ----------
@@ -213,6 +223,13 @@ class SynthesisPlan:
         The memory budget option the mode was chosen with (recorded, so the
         choice can be read off the plan).
 
+    Examples
+    --------
+    >>> plan = SynthesisPlan(rate_hz=8.0, total_samples=8, frame_length=8, line_spectrum=[0, 1, 1, 1, 0],
+    ...                      mode="periodic")
+    >>> plan.resolution_hz, plan.line_variance
+    (1.0, 3.0)
+
     References
     ----------
     See the module docstring.
@@ -234,8 +251,8 @@ class SynthesisPlan:
     memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES
 
     def __post_init__(self):
-        object.__setattr__(self, "mode", check_choice(self.mode, MODES, "mode"))
-        object.__setattr__(self, "amplitude", check_choice(self.amplitude, AMPLITUDE_MODES, "amplitude"))
+        object.__setattr__(self, "mode", _check_choice(self.mode, MODES, "mode"))
+        object.__setattr__(self, "amplitude", _check_choice(self.amplitude, AMPLITUDE_MODES, "amplitude"))
         rate = float(self.rate_hz)
         if not (math.isfinite(rate) and rate > 0):
             raise InputError(f"rate {self.rate_hz!r} Hz must be a finite number > 0", "rate")
@@ -252,7 +269,7 @@ class SynthesisPlan:
                 "(apply, moments, output_variance, hermite_coefficients, series_order, peak_limit)",
                 "transform",
             )
-        spectrum = clean_line_spectrum(self.line_spectrum, frame)
+        spectrum = _clean_line_spectrum(self.line_spectrum, frame)
         if not np.sum(spectrum) > 0:
             raise InputError("no frequency line with a non-zero spectrum falls on the frame grid; use a finer resolution", "line_spectrum")
         spectrum.setflags(write=False)
@@ -260,7 +277,7 @@ class SynthesisPlan:
         if not quantities or len(set(quantities)) != len(quantities):
             raise InputError(f"quantities {quantities!r} must be a non-empty list without repeats", "quantities")
         for quantity in quantities:
-            check_choice(quantity, tuple(QUANTITY_UNITS), "quantities")
+            _check_choice(quantity, tuple(QUANTITY_UNITS), "quantities")
         if quantities != ("acceleration",) and quantities[0] != "acceleration":
             raise InputError("the first quantity must be acceleration", "quantities")
         if len(quantities) > 1 and (self.mode != "periodic" or self.transform is not None):
@@ -356,7 +373,7 @@ class SynthesisPlan:
 
     @cached_property
     def _band(self) -> tuple[int, int]:
-        return band_of(self.line_spectrum)
+        return _band_of(self.line_spectrum)
 
     @cached_property
     def _window(self) -> np.ndarray:
@@ -376,6 +393,11 @@ def parse_quantities(quantities) -> tuple[tuple[str, ...], bool]:
     (tuple of str, bool)
         The full names, and whether a single name was given as a string
         (the library then returns 1-D arrays).
+
+    Examples
+    --------
+    >>> parse_quantities("accel,vel")
+    (('acceleration', 'velocity'), False)
 
     References
     ----------

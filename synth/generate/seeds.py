@@ -36,6 +36,11 @@ def root_seed_sequence(seed) -> np.random.SeedSequence:
     -------
     numpy.random.SeedSequence
 
+    Examples
+    --------
+    >>> root_seed_sequence(42).entropy
+    42
+
     References
     ----------
     NumPy ``SeedSequence`` (O'Neill's seed mixing) and its ``spawn_key`` children.
@@ -56,7 +61,17 @@ def root_seed_sequence(seed) -> np.random.SeedSequence:
 
 
 def seed_entropy(sequence: np.random.SeedSequence) -> int:
-    """The integer entropy of a root seed sequence (what a sidecar records as ``seed``)."""
+    """The integer entropy of a root seed sequence (what a sidecar records as ``seed``).
+
+    Examples
+    --------
+    >>> seed_entropy(root_seed_sequence(42))
+    42
+
+    References
+    ----------
+    See the module docstring.
+    """
     entropy = sequence.entropy
     if isinstance(entropy, (list, tuple, np.ndarray)):
         raise InputError("a seed sequence with a list of entropy words cannot be recorded as one seed; pass an int", "seed")

@@ -78,6 +78,11 @@ def plan_transform(kurtosis: float | None = None, skewness: float | None = None,
         1.29 to 3 with the hardening form at skewness 0; crest factors above 1
         and up to 10).
 
+    Examples
+    --------
+    >>> plan_transform(kurtosis=6.0).family, plan_transform(clip=3.0).family, plan_transform(kurtosis=3.0)
+    ('hermite', 'clip', None)
+
     References
     ----------
     .. [1] S. R. Winterstein, "Nonlinear vibration models for extremes and
@@ -141,6 +146,11 @@ def transform_family(transform) -> str:
     InputError
         For any other object.
 
+    Examples
+    --------
+    >>> transform_family(plan_transform(clip=3.0))
+    'clip'
+
     References
     ----------
     Winterstein (1988), cubic Hermite model; Van Vleck & Middleton (1966), clipped Gaussian.
@@ -168,6 +178,11 @@ def transform_record(transform) -> dict:
         the output), ``clipped_rms_sigma``; for both: ``skewness`` and
         ``kurtosis`` (exact moments of the transformed Gaussian) and
         ``applied`` (where in the pipeline).
+
+    Examples
+    --------
+    >>> transform_record(plan_transform(kurtosis=6.0))["form"]
+    'softening'
 
     References
     ----------
@@ -221,6 +236,11 @@ def gaussian_level(transform, y):
         ``u`` with ``g(u) = y`` (sigma units of the Gaussian stream); for
         clipping ``+inf`` at or above the crest factor and ``-inf`` at or
         below minus it (no Gaussian level reaches the clipped value's far side).
+
+    Examples
+    --------
+    >>> gaussian_level(None, [1.0, 2.0])
+    array([1., 2.])
 
     References
     ----------
