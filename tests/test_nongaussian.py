@@ -319,3 +319,29 @@ def test_library_errors_name_parameters_not_options():
     with pytest.raises(InputError) as caught:
         plan_transform(kurtosis="high")
     assert caught.value.source == "kurtosis" and "--" not in caught.value.one_line()
+
+
+@pytest.mark.parametrize("options", [dict(kurtosis=6.0), dict(clip=2.5)])
+def test_overlap_add_pipeline_is_transform_then_fir_then_clip_then_scale(options):
+    """Output sample n = sigma_T clip(y[n + D] - (h * y)[n + D]) for y = g(u), u the plain Gaussian stream.
+
+    Reference: scipy.signal.fftconvolve (linear convolution) on the transformed stream, independent of
+    the block filtering inside the pipeline; the stages in the order of the one pipeline.
+    """
+    plan, design = _design(options, 2**20, samples=1 << 18)
+    assert plan.mode == "overlap-add"
+    highpass = plan.spill_highpass
+    d = highpass.half_length
+    n = plan.total_samples
+    # the unit-variance Gaussian stream of the same lines and seed: no transform, no filter, scale 1
+    stream_plan = dataclasses.replace(plan, transform=None, spill_highpass=None, output_scale=1.0,
+                                      total_samples=n + 2 * d)
+    u = Synthesizer(stream_plan, 5).samples()[:, 0]
+    y = plan.transform.apply(u)
+    taps = highpass.lowpass_taps()
+    expected = y[d : d + n] - scipy.signal.fftconvolve(y[: n + 2 * d], taps, mode="valid")
+    if plan.transform.peak_limit is not None:
+        expected = np.clip(expected, -plan.transform.peak_limit, plan.transform.peak_limit)
+    expected *= GENTLE.grms
+    out = Synthesizer(plan, 5, workers=2).samples()[:, 0]
+    np.testing.assert_allclose(out, expected, rtol=0, atol=1e-12 * np.max(np.abs(expected)))

@@ -83,6 +83,7 @@ from vibsynth.errors import InputError, OutOfRangeError
 from vibsynth.generate.highpass import SpillHighpass
 from vibsynth.generate.plan import SynthesisPlan, warn_all
 from vibsynth.profile.asd import AsdProfile
+from vibsynth.transforms.base import MemorylessTransform
 from vibsynth.transforms.choice import transform_family, transform_record
 from vibsynth.transforms.compensation import CompensationResult, compensate_spectrum, highpass_moment_retention
 from vibsynth.transforms.hermite import solve_cubic_hermite
@@ -114,8 +115,8 @@ class NonGaussianDesign:
 
     Attributes
     ----------
-    transform : HermiteTransform or ClipTransform
-        Unit-variance memoryless transform.
+    transform : MemorylessTransform
+        The unit-variance memoryless transform applied (the plan's ``transform``).
     line_spectrum : numpy.ndarray
         Compensated one-sided spectrum of the unit-variance Gaussian stream on
         the plan's grid ``k rate / N``, 1/Hz (sums to 1 / df).
@@ -149,7 +150,7 @@ class NonGaussianDesign:
     See the module docstring.
     """
 
-    transform: object
+    transform: MemorylessTransform
     line_spectrum: np.ndarray
     output_scale_g: float
     compensation: CompensationResult

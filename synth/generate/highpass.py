@@ -44,7 +44,6 @@ from typing import Iterator
 
 import numpy as np
 import scipy.fft
-import scipy.signal
 
 from vibsynth.errors import InputError
 
@@ -163,6 +162,8 @@ class SpillHighpass:
         if self.half_length is None:
             raise InputError("a periodic record's high-pass has no taps; use record_response", "highpass")
         d = int(self.half_length)
+        import scipy.signal  # only here: the package is slow to import
+
         beta = scipy.signal.kaiser_beta(_HIGHPASS_DESIGN_DB)  # 0.1102 (A - 8.7), Kaiser (1974)
         cutoff = 0.5 * (self.pass_edge_hz + self.stop_edge_hz) / self.rate_hz  # cycles per sample
         k = np.arange(-d, d + 1, dtype=np.float64)

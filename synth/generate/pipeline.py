@@ -61,7 +61,6 @@ import scipy.fft
 
 from vibsynth.errors import InputError
 from vibsynth.generate._threads import check_workers, frame_workers, ordered_map
-from vibsynth.generate.design import make_nongaussian_plan
 from vibsynth.generate.frames import _draw_lines, raised_cosine_ramp
 from vibsynth.generate.highpass import PartitionedHighpass, block_highpass, periodic_highpass
 from vibsynth.generate.plan import (
@@ -73,7 +72,6 @@ from vibsynth.generate.plan import (
 )
 from vibsynth.generate.seeds import FRAME_STREAM, PERIODIC_STREAM, child_generator, root_seed_sequence, seed_entropy
 from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
-from vibsynth.transforms.choice import plan_transform
 
 __all__ = ["Synthesizer", "generate_samples", "iter_chunks", "make_synthesizer"]
 
@@ -428,7 +426,12 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
     See :func:`generate_samples`.
     """
     names, single = parse_quantities(quantities)
-    transform = plan_transform(kurtosis, skewness, clip)
+    transform = None
+    if not (kurtosis is None and skewness is None and clip is None):
+        # the transforms and the compensation are loaded only for a non-Gaussian drive
+        from vibsynth.transforms.choice import plan_transform
+
+        transform = plan_transform(kurtosis, skewness, clip)
     if transform is not None and len(names) > 1:
         raise InputError(
             "velocity/displacement columns are integrated from Gaussian lines and cannot follow a non-Gaussian "
@@ -440,6 +443,8 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
                      ramp_in_s=ramp, ramp_out_s=ramp, quantities=names, memory_budget_bytes=memory_budget_bytes,
                      transform=transform)
     if transform is not None:
+        from vibsynth.generate.design import make_nongaussian_plan
+
         plan, _ = make_nongaussian_plan(profile, plan, transform)
     return Synthesizer(plan, seed, workers), single
 
