@@ -286,7 +286,7 @@ class NonGaussianDesign:
             messages.append(
                 f"the frame is too short to filter the transform's spill-over below {self.band_hz[0]:g} Hz "
                 f"({100 * below:.2g} % of the variance, down to 0 Hz): the drive asks for more displacement than "
-                "the profile; use the default --resolution"
+                "the profile; use the default resolution"
             )
         if above >= _SPILL_NOTE_FRACTION:
             messages.append(
