@@ -141,7 +141,7 @@ def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, ampl
     samples (a warning says when that is large; lower --records or --rate).
     """
     from vibsynth import peaks as peak_stats
-    from vibsynth.generate.nongaussian import plan_transform
+    from vibsynth.transforms.choice import plan_transform
 
     quiet = is_quiet(command_quiet)
     target = load_profile(profile, grms, level_db)

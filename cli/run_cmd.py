@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from vibsynth._checks import COMMON_RATES_HZ, default_rate_hz  # noqa: F401  (the one default-rate rule)
+from vibsynth._checks import default_rate_hz  # the one default-rate rule
 from vibsynth.cli import options
 from vibsynth.cli.common import (
     DRIVE_CAUTION,
@@ -113,9 +113,12 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
         pending = drive_job.prepare_run(target, request)
         for message in pending.warnings:
             warn(message)
-        with progress_for(pending.prepared, quiet=quiet) as progress:
-            result = drive_job.complete_run(pending, progress)
-    mark_drive_written()
+        try:
+            with progress_for(pending.prepared, quiet=quiet) as progress:
+                result = drive_job.complete_run(pending, progress)
+        finally:
+            if Path(pending.prepared.request.output).exists():
+                mark_drive_written()  # the caution reaches stderr even when a later step fails
     later = result.warnings[len(pending.warnings):]
     for message in later:
         warn(message)

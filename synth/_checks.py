@@ -30,7 +30,7 @@ COMMON_RATES_HZ = (1024, 2048, 4096, 5120, 8192, 10240, 12800, 16384, 20480, 256
 AMPLITUDE_MODES = ("fixed", "rayleigh")
 
 #: Quantities a drive file can hold, with the unit of their column.
-QUANTITY_UNITS = {"acceleration": "g", "velocity": "m/s", "displacement": "m"}
+from vibsynth.io.quantities import QUANTITY_UNITS  # noqa: E402  (the one units table; no numpy)
 
 #: Short forms accepted for the quantities.
 QUANTITY_ALIASES = {"accel": "acceleration", "acc": "acceleration", "vel": "velocity", "disp": "displacement"}

@@ -47,8 +47,9 @@ from vibsynth.io.sidecar import Sidecar, profile_block
 
 if TYPE_CHECKING:  # the generator is imported only by the functions that generate
     from vibsynth.analysis.verify import Criteria, Verification
-    from vibsynth.generate import nongaussian
-    from vibsynth.generate import pipeline as synthesis
+    from vibsynth.generate import design as nongaussian
+    from vibsynth.generate import pipeline
+    from vibsynth.generate import plan as synthesis
     from vibsynth.profile.asd import AsdProfile
 
 #: Rescale options as the sidecar names them (unit suffix).
@@ -162,7 +163,7 @@ class PreparedDrive:
     request: DriveRequest
     profile: AsdProfile
     plan: synthesis.SynthesisPlan
-    synthesizer: synthesis.Synthesizer
+    synthesizer: pipeline.Synthesizer
     file_format: str
     subtype: str
     sidecar: Sidecar
@@ -204,12 +205,14 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     ----------
     Random-phase inverse-FFT synthesis (Shinozuka & Deodatis 1991, Appl. Mech.
     Rev. 44(4)); see :mod:`vibsynth.generate.pipeline`.  Non-Gaussian drives: Winterstein
-    (1988), Yamazaki & Shinozuka (1988); see :mod:`vibsynth.generate.nongaussian`.
+    (1988), Yamazaki & Shinozuka (1988); see :mod:`vibsynth.generate.design`.
     """
     import scipy
 
-    from vibsynth.generate import nongaussian
-    from vibsynth.generate import pipeline as synthesis
+    from vibsynth.generate import design as nongaussian
+    from vibsynth.generate import pipeline
+    from vibsynth.generate import plan as synthesis
+    from vibsynth.transforms.choice import plan_transform
 
     file_format = drivefile.drive_format(request.output)
     subtype = drivefile.check_subtype(file_format, request.subtype)
@@ -221,13 +224,12 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         )
     if request.full_scale_g is not None and file_format not in ("wav", "flac"):
         raise InputError(f"--full-scale applies to .wav/.flac; .{file_format} holds values in g", "--full-scale")
-    transform = nongaussian.plan_transform(request.kurtosis, request.skewness, request.clip)
+    transform = plan_transform(request.kurtosis, request.skewness, request.clip)
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
-    budget_bytes = int(min(request.memory_budget_mb * 2**20, usable_memory_bytes() / 2))
-    if transform is not None:
-        # a non-Gaussian periodic record also holds its spectrum for the high-pass
-        budget_bytes = budget_bytes * synthesis.PERIODIC_BYTES_PER_SAMPLE // nongaussian.PERIODIC_BYTES_PER_SAMPLE
-    plan = synthesis.plan_synthesis(
+    # the option alone picks periodic vs overlap-add (the same samples on every machine); a periodic
+    # record the machine cannot hold is refused by the planner.  Warnings are kept in plan.warnings.
+    budget_bytes = request.memory_budget_mb * 2**20
+    plan = synthesis.make_plan(
         profile,
         request.duration_s,
         request.rate_hz,
@@ -238,6 +240,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         ramp_out_s=request.ramp_s,
         quantities=names,
         memory_budget_bytes=budget_bytes,
+        transform=transform,
     )
     drivefile.check_drive_request(
         request.output, rate_hz=plan.rate_hz, samples=plan.total_samples, quantities=plan.quantities, subtype=subtype
@@ -245,15 +248,12 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     grms_lines = plan.line_variance**0.5
     design = None
     if transform is not None:
-        plan, design = nongaussian.nongaussian_plan(profile, plan, transform)
+        plan, design = nongaussian.make_nongaussian_plan(profile, plan, transform)
     seed = request.seed
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % 2**53)  # exact in any JSON reader
-    workers = default_workers() if request.workers is None else synthesis.check_workers(request.workers)
-    if design is None:
-        synthesizer = synthesis.Synthesizer(plan, seed, workers)
-    else:
-        synthesizer = design.synthesizer(plan, seed, workers)
+    workers = default_workers() if request.workers is None else request.workers
+    synthesizer = pipeline.Synthesizer(plan, seed, workers)
     options = {
         "amplitude": request.amplitude,
         "resolution_hz": request.resolution_hz,
@@ -271,7 +271,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         "numpy SeedSequence(seed) children: overlap-add frame j uses spawn_key (0, j), "
         "a periodic record spawn_key (1,); PCG64; one standard normal pair per line"
     )
-    if plan.spill_highpass is not None:
+    if plan.spill_highpass is not None and design is None:  # a non-Gaussian drive records it with its compensation
         seed_derivation += (
             f"; overlap-add: sample n is sample n + {plan.spill_highpass.half_length} of the windowed sum of frames, "
             "high-passed by the spill_highpass FIR (the window's leakage below the band removed)"
@@ -293,7 +293,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
             "line_spacing_hz": plan.resolution_hz,
             "grms_lines_g": grms_lines,
             "seed_derivation": seed_derivation,
-            "spill_highpass": plan.spill_highpass.to_dict() if plan.spill_highpass is not None else None,
+            "spill_highpass": plan.spill_highpass.to_dict() if plan.spill_highpass is not None and design is None else None,
         },
         profile=profile_block(profile, request.profile_source),
         transform=design.transform_block() if design is not None else None,
@@ -368,17 +368,6 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
         progress=step,
     )
 
-
-def usable_memory_bytes() -> float:
-    """Physical memory of this machine in bytes (POSIX sysconf); 64 GiB where it cannot be read.
-
-    A memory budget above half of it is cut to half, so a periodic record never
-    plans more than the machine can hold.
-    """
-    try:
-        return float(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES"))
-    except (AttributeError, ValueError, OSError):
-        return float(64 * 2**30)
 
 
 # ====================================================================== verify side

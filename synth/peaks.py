@@ -82,14 +82,12 @@ from vibsynth.analysis.extremes import (
     davenport_expected_largest_peak_sigma,
     davenport_largest_peak_std_sigma,
 )
-from vibsynth.generate.nongaussian import gaussian_level, nongaussian_plan, transform_record
+from vibsynth.generate.design import make_nongaussian_plan
+from vibsynth.generate.pipeline import Synthesizer
+from vibsynth.generate.plan import make_plan
+from vibsynth.generate.seeds import root_seed_sequence, seed_entropy
 from vibsynth.profile.asd import AsdProfile
-from vibsynth.generate.pipeline import (
-    Synthesizer,
-    plan_synthesis,
-    root_seed_sequence,
-    seed_entropy,
-)
+from vibsynth.transforms.choice import gaussian_level, transform_record
 
 __all__ = [
     "DEFAULT_RECORDS",
@@ -402,15 +400,13 @@ def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, des
     """Synthesize N records of a plan and count their peaks and exceedances.
 
     Record ``i`` is made from the seed sequence ``SeedSequence(seed, spawn_key=(i,))``
-    by :class:`vibsynth.generate.pipeline.Synthesizer` (Gaussian) or
-    :class:`vibsynth.generate.nongaussian.NonGaussianSynthesizer` (with ``design``),
-    exactly as a drive file is.
+    by :class:`vibsynth.generate.pipeline.Synthesizer`, exactly as a drive file is.
 
     Parameters
     ----------
     plan : SynthesisPlan
         The drive's plan (Gaussian, or non-Gaussian from
-        :func:`vibsynth.generate.nongaussian.nongaussian_plan`).
+        :func:`vibsynth.generate.design.nongaussian_plan`).
     records : int
         N, >= 1.
     seed : int
@@ -420,7 +416,7 @@ def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, des
     progress : callable, optional
         Called with a sample count after each chunk.
     design : NonGaussianDesign, optional
-        The non-Gaussian design that goes with ``plan``.
+        The non-Gaussian design that goes with ``plan`` (unused: the plan carries its transform).
 
     Returns
     -------
@@ -440,7 +436,7 @@ def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, des
     total = 0
     for index in range(int(records)):
         record_seed = np.random.SeedSequence(entropy, spawn_key=(index,))
-        synthesizer = Synthesizer(plan, record_seed) if design is None else design.synthesizer(plan, record_seed)
+        synthesizer = Synthesizer(plan, record_seed)
         peak, s1, s2, s3, s4, n = 0.0, 0.0, 0.0, 0.0, 0.0, 0
         for chunk in synthesizer.iter_chunks(_CHUNK_SAMPLES):
             x = chunk[:, 0]
@@ -620,7 +616,7 @@ def peak_report(profile: AsdProfile, duration_s: float, rate_hz: float | None = 
     rate_hz : float, optional
         Sample rate, Hz (default :func:`default_rate_hz`).
     transform : HermiteTransform, ClipTransform or None
-        Non-Gaussian transform (from :func:`vibsynth.generate.nongaussian.plan_transform`);
+        Non-Gaussian transform (from :func:`vibsynth.transforms.choice.plan_transform`);
         None gives the Gaussian row only.
     records : int
         Monte-Carlo records per row (0: theory only).
@@ -647,13 +643,13 @@ def peak_report(profile: AsdProfile, duration_s: float, rate_hz: float | None = 
     options = {"amplitude": amplitude}
     if memory_budget_bytes is not None:
         options["memory_budget_bytes"] = int(memory_budget_bytes)
-    plan = plan_synthesis(profile, duration_s, rate, **options)
+    plan = make_plan(profile, duration_s, rate, **options)  # warnings are carried by the report
     seed_value = seed_entropy(root_seed_sequence(seed))
     plans = [("gaussian", plan, None, None)]
     compensation = None
     warnings = list(plan.warnings)
     if transform is not None:
-        planned, design = nongaussian_plan(profile, plan, transform)
+        planned, design = make_nongaussian_plan(profile, plan, transform)
         record = design.transform_block()
         skewness = record.get("requested_skewness", record["skewness"])
         kurtosis = record.get("requested_kurtosis", record["kurtosis"])

@@ -22,17 +22,15 @@ import pytest
 import scipy.signal
 import scipy.stats
 
-from vibsynth.errors import InputError, OutOfRangeError
-from vibsynth.generate.nongaussian import (
-    NonGaussianSynthesizer,
-    SpillHighpass,
-    StreamTransform,
-    highpass_moment_retention,
-    nongaussian_plan,
-    plan_transform,
-)
+from vibsynth.errors import InputError, OutOfRangeError, VibsynthWarning
+from vibsynth.generate.design import nongaussian_plan
+from vibsynth.generate.highpass import SpillHighpass
+from vibsynth.generate.pipeline import Synthesizer
+from vibsynth.generate.plan import plan_synthesis
 from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
-from vibsynth.generate.pipeline import Synthesizer, plan_synthesis
+from vibsynth.transforms.choice import plan_transform
+from vibsynth.transforms.compensation import highpass_moment_retention
+from vibsynth.transforms.hermite import solve_cubic_hermite
 
 RATE_HZ = 4096.0
 SAMPLES = 1 << 21  # 512 s at 4096 Hz
@@ -56,7 +54,8 @@ def _design(options, budget=SMALL_BUDGET, profile=GENTLE, samples=SAMPLES, **pla
 
 
 def _record(plan, design, seed):
-    return design.synthesizer(plan, seed).samples()[:, 0]
+    assert plan.transform is design.transform  # the plan alone drives the pipeline
+    return Synthesizer(plan, seed).samples()[:, 0]
 
 
 CASES = [
@@ -129,7 +128,7 @@ def test_compensation_is_what_keeps_a_steep_skirt_in_tolerance():
     base = plan_synthesis(STEEP, (1 << 20) / RATE_HZ, RATE_HZ, memory_budget_bytes=SMALL_BUDGET)
     transform = plan_transform(kurtosis=6.0)
     plan, design = nongaussian_plan(STEEP, base, transform)
-    naive_plan = dataclasses.replace(base, transform=StreamTransform(transform), output_scale=STEEP.grms)
+    naive_plan = dataclasses.replace(base, transform=transform, output_scale=STEEP.grms)
     compensated = _welch_db(_record(plan, design, 3), STEEP)
     naive = _welch_db(Synthesizer(naive_plan, 3).samples()[:, 0], STEEP)
     assert np.max(compensated) < 0.5
@@ -153,7 +152,7 @@ def test_spill_over_high_pass_keeps_the_displacement_of_the_profile(budget):
     # closed-form displacement RMS (AsdProfile, S g0^2 / (2 pi f)^4 integrated per segment).
     plan, design = _design(dict(kurtosis=6.0), budget, samples=1 << 20)
     filtered = _record(plan, design, 8)
-    raw = Synthesizer(plan, 8).samples()[:, 0]  # transform hook alone, no high-pass
+    raw = Synthesizer(dataclasses.replace(plan, spill_highpass=None), 8).samples()[:, 0]  # transform alone, no high-pass
     expected = GENTLE.displacement_rms_m
     assert _displacement_rms_m(filtered, 1.0) == pytest.approx(expected, rel=0.1)
     assert _displacement_rms_m(raw, 1.0) > 5 * expected
@@ -202,12 +201,12 @@ def test_moment_retention_matches_its_definition_in_the_time_domain():
 def test_same_seed_same_samples_independent_of_chunk_size_and_start():
     plan, design = _design(dict(kurtosis=6.0), 2**20, samples=1 << 18, ramp_in_s=1.0, ramp_out_s=1.0)
     assert plan.mode == "overlap-add"
-    small = np.concatenate([c[:, 0] for c in design.synthesizer(plan, 21).iter_chunks(1000)])
-    large = np.concatenate([c[:, 0] for c in design.synthesizer(plan, 21).iter_chunks(65536)])
-    part = design.synthesizer(plan, 21).samples(12345, 99999)[:, 0]
+    small = np.concatenate([c[:, 0] for c in Synthesizer(plan, 21).iter_chunks(1000)])
+    large = np.concatenate([c[:, 0] for c in Synthesizer(plan, 21).iter_chunks(65536)])
+    part = Synthesizer(plan, 21).samples(12345, 99999)[:, 0]
     assert np.array_equal(small, large)
     assert np.array_equal(small[12345:99999], part)
-    assert not np.array_equal(small, np.concatenate([c[:, 0] for c in design.synthesizer(plan, 22).iter_chunks(65536)]))
+    assert not np.array_equal(small, np.concatenate([c[:, 0] for c in Synthesizer(plan, 22).iter_chunks(65536)]))
 
 
 @pytest.mark.parametrize("options", [dict(kurtosis=5.0), dict(clip=2.5)])
@@ -241,7 +240,7 @@ def test_refusals_name_the_reachable_range():
         plan_transform(kurtosis=1.2)
     with pytest.raises(OutOfRangeError, match=r"above 1 and at most 10"):
         plan_transform(clip=0.8)
-    with pytest.raises(InputError, match=r"--clip cannot be combined with --kurtosis"):
+    with pytest.raises(InputError, match=r"clip cannot be combined with kurtosis"):
         plan_transform(kurtosis=5.0, clip=3.0)
     assert plan_transform() is None
     assert plan_transform(kurtosis=3.0) is None  # the Gaussian drive
@@ -266,13 +265,16 @@ def test_design_records_the_compensation_and_the_transform():
     # the transform itself is solved slightly above 6 so that the high-pass brings it back to 6
     assert 6.0 < block["kurtosis"] < 6.3
     assert plan.output_scale == pytest.approx(GENTLE.grms)
-    assert isinstance(design.synthesizer(plan, 0), NonGaussianSynthesizer)
+    # one source of truth: the plan carries the transform its spectrum was compensated for
+    assert plan.transform is design.transform and plan.spill_highpass is design.highpass
+    assert plan.transform.moments()[3] == pytest.approx(block["kurtosis"], rel=1e-12)
 
 
 def test_unreachable_target_is_reported_not_hidden():
     # Kurtosis 8 on 16 dB skirts: the spill-over alone exceeds the skirt target near the band edges.
     base = plan_synthesis(STEEP, 60.0, RATE_HZ, memory_budget_bytes=SMALL_BUDGET)
-    plan, design = nongaussian_plan(STEEP, base, plan_transform(kurtosis=8.0))
+    with pytest.warns(VibsynthWarning, match="cannot be fully compensated"):
+        plan, design = nongaussian_plan(STEEP, base, plan_transform(kurtosis=8.0))
     assert design.compensation.achievable is False
     assert any("cannot be fully compensated" in message for message in plan.warnings)
 
@@ -288,10 +290,58 @@ def test_high_pass_block_grows_when_the_frame_is_short_for_the_band():
     highpass = design.highpass
     assert plan.mode == "overlap-add" and highpass.block_samples > plan.hop
     assert 0.5 <= highpass.stop_edge_hz < highpass.pass_edge_hz == pytest.approx(0.95)
-    synthesizer = design.synthesizer(plan, 1)
+    synthesizer = Synthesizer(plan, 1)
     x = synthesizer.samples()[:, 0]
-    assert np.array_equal(x[5000:70000], design.synthesizer(plan, 1).samples(5000, 70000)[:, 0])
+    assert np.array_equal(x[5000:70000], Synthesizer(plan, 1).samples(5000, 70000)[:, 0])
     assert scipy.stats.kurtosis(x, fisher=False) == pytest.approx(6.0, rel=0.05)
     f, p = scipy.signal.welch(x, fs=rate, nperseg=4096)
     judged = (f >= 1 + 2 * f[1]) & (f <= 100 - 2 * f[1])
     assert np.max(np.abs(10 * np.log10(p[judged] / low.evaluate(f[judged])))) < 1.0
+
+
+def test_plan_carries_the_applied_transform_not_the_requested_one():
+    # Kurtosis 6 is re-solved for the high-pass (the transform is solved for 3 + (6 - 3) / p3);
+    # the plan's transform is that re-solved one: its c4 is the one the spectrum was compensated
+    # for, not the requested transform's (Winterstein 1988 closed forms, solve_cubic_hermite).
+    requested = plan_transform(kurtosis=6.0)
+    plan, design = _design(dict(kurtosis=6.0), SMALL_BUDGET, samples=1 << 18)
+    p2, p3 = design.moment_retention
+    resolved = solve_cubic_hermite(0.0, 3.0 + (6.0 - 3.0) / p3)
+    assert plan.transform.c4 == pytest.approx(resolved.c4, rel=1e-9)
+    assert plan.transform.c4 != pytest.approx(requested.c4, rel=1e-4)
+    assert design.requested_moments == pytest.approx((0.0, 6.0))
+
+
+def test_library_errors_name_parameters_not_options():
+    with pytest.raises(InputError) as caught:
+        plan_transform(kurtosis=5.0, clip=3.0)
+    assert caught.value.source == "clip" and "--" not in caught.value.one_line()
+    with pytest.raises(InputError) as caught:
+        plan_transform(kurtosis="high")
+    assert caught.value.source == "kurtosis" and "--" not in caught.value.one_line()
+
+
+@pytest.mark.parametrize("options", [dict(kurtosis=6.0), dict(clip=2.5)])
+def test_overlap_add_pipeline_is_transform_then_fir_then_clip_then_scale(options):
+    """Output sample n = sigma_T clip(y[n + D] - (h * y)[n + D]) for y = g(u), u the plain Gaussian stream.
+
+    Reference: scipy.signal.fftconvolve (linear convolution) on the transformed stream, independent of
+    the block filtering inside the pipeline; the stages in the order of the one pipeline.
+    """
+    plan, design = _design(options, 2**20, samples=1 << 18)
+    assert plan.mode == "overlap-add"
+    highpass = plan.spill_highpass
+    d = highpass.half_length
+    n = plan.total_samples
+    # the unit-variance Gaussian stream of the same lines and seed: no transform, no filter, scale 1
+    stream_plan = dataclasses.replace(plan, transform=None, spill_highpass=None, output_scale=1.0,
+                                      total_samples=n + 2 * d)
+    u = Synthesizer(stream_plan, 5).samples()[:, 0]
+    y = plan.transform.apply(u)
+    taps = highpass.lowpass_taps()
+    expected = y[d : d + n] - scipy.signal.fftconvolve(y[: n + 2 * d], taps, mode="valid")
+    if plan.transform.peak_limit is not None:
+        expected = np.clip(expected, -plan.transform.peak_limit, plan.transform.peak_limit)
+    expected *= GENTLE.grms
+    out = Synthesizer(plan, 5, workers=2).samples()[:, 0]
+    np.testing.assert_allclose(out, expected, rtol=0, atol=1e-12 * np.max(np.abs(expected)))

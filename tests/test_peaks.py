@@ -24,7 +24,7 @@ import scipy.stats
 
 from vibsynth.cli.main import main
 from vibsynth import peaks
-from vibsynth.generate.nongaussian import plan_transform
+from vibsynth.transforms.choice import plan_transform
 from vibsynth.profile.asd import AsdProfile
 
 GENTLE = AsdProfile([20, 40, 600, 1000], [0.01, 0.04, 0.04, 0.01], name="invented gentle")

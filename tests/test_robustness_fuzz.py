@@ -413,11 +413,29 @@ def test_huge_values_are_refused_in_one_line(tmp_path, profile_file, extra):
     assert os.listdir(tmp_path) == []
 
 
-def test_huge_memory_budget_is_cut_to_the_machine(tmp_path, profile_file):
-    # A budget far above the machine's memory is cut to half of it (vibsynth.jobs.usable_memory_bytes)
-    # instead of planning, and allocating, a record the machine cannot hold.
-    argv = ["generate", profile_file, "-o", tmp_path / "d.npy", "--duration", 1, "--rate", RATE,
-            "--memory-budget", "1e308"]
+def test_huge_memory_budget_is_honoured_or_refused_never_switched(tmp_path, profile_file, monkeypatch):
+    # The periodic/overlap-add choice comes from the options alone, never from the machine's memory,
+    # so the same options give the same samples on every machine: a budget far above any machine's
+    # memory makes a periodic record, recorded in the sidecar, written when the machine holds it ...
+    argv = ["generate", profile_file, "-o", tmp_path / "d.npy", "--duration", 60, "--rate", RATE,
+            "--memory-budget", "1e308", "--seed", 3]
     status, out, err = _quiet_main(argv)
     _check_cli_outcome(status, out, err, allowed=(0,))
     assert (tmp_path / "d.npy").exists()
+    sidecar = json.loads(sidecar_path(tmp_path / "d.npy").read_text())
+    assert sidecar["plan"]["mode"] == "periodic" and sidecar["options"]["memory_budget_mib"] == 1e308
+    # ... the same samples as with the default budget (307200 samples x 48 bytes = 14 MiB: periodic too) ...
+    status, out, err = _quiet_main(["generate", profile_file, "-o", tmp_path / "e.npy", "--duration", 60, "--rate", RATE,
+                                    "--seed", 3])
+    _check_cli_outcome(status, out, err, allowed=(0,))
+    assert np.array_equal(np.load(tmp_path / "d.npy"), np.load(tmp_path / "e.npy"))
+    # ... and refused in one line (exit 2, nothing written) on a machine that cannot hold it, instead of
+    # silently switching to overlap-add (a machine of 1 MiB stands in for one too small for 14 MiB).
+    from vibsynth.generate import _memory
+
+    monkeypatch.setattr(_memory, "machine_memory_bytes", lambda: float(2**20))
+    status, out, err = _quiet_main(argv[:3] + [tmp_path / "f.npy"] + argv[4:])
+    _check_cli_outcome(status, out, err, allowed=(2,))
+    assert "memory" in err and "--memory-budget" in err
+    assert not (tmp_path / "f.npy").exists()
+    assert sorted(os.listdir(tmp_path)) == sorted(["d.npy", "d.npy.json", "e.npy", "e.npy.json"])

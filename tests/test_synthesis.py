@@ -1,4 +1,4 @@
-"""Gaussian drive synthesis (vibsynth.generate.pipeline) against outside references.
+"""Gaussian drive synthesis (vibsynth.generate: plan, frames, pipeline) against outside references.
 
 References used below:
 - DFT Parseval relation, sum x_n^2 = (1/N) sum |X_k|^2 (any DSP text, e.g.
@@ -26,18 +26,11 @@ import scipy.stats
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from vibsynth.errors import InputError
+from vibsynth.errors import InputError, VibsynthWarning
 from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
-from vibsynth.generate.pipeline import (
-    Synthesizer,
-    generate_samples,
-    iter_chunks,
-    plan_synthesis,
-    raised_cosine_ramp,
-    rig_limit_check,
-    sine_window,
-    synthesize_frame,
-)
+from vibsynth.generate.frames import raised_cosine_ramp, sine_window, synthesize_frame
+from vibsynth.generate.pipeline import Synthesizer, generate_samples, iter_chunks
+from vibsynth.generate.plan import plan_synthesis, rig_limit_check
 
 # Invented profile: a bracket-mount random test, 20-2000 Hz, about 5.7 g RMS.
 BRACKET = AsdProfile([20, 80, 350, 2000], [0.01, 0.04, 0.04, 0.005], name="invented-bracket")
@@ -283,7 +276,8 @@ def test_loop_beyond_budget_and_ramped_loop_are_refused():
 def test_rate_must_exceed_twice_the_top_frequency():
     with pytest.raises(InputError, match="twice the profile's top frequency"):
         plan_synthesis(BRACKET, 10.0, 4000.0)
-    plan = plan_synthesis(BRACKET, 10.0, 4500.0)  # above 2x, below 2.56x (common practice)
+    with pytest.warns(VibsynthWarning, match="2.56"):
+        plan = plan_synthesis(BRACKET, 10.0, 4500.0)  # above 2x, below 2.56x (common practice)
     assert any("2.56" in message for message in plan.warnings)
     assert plan_synthesis(BRACKET, 10.0, 5120.0).warnings == ()
 
@@ -313,17 +307,44 @@ def test_rig_limits_refuse_with_the_excess():
     rig_limit_check(BRACKET, stroke_limit_mm=1.01 * stroke_mm, velocity_limit_m_s=3.01 * BRACKET.velocity_rms_m_s)
 
 
+class _Cube:
+    """``g(u) = u^3`` behind the MemorylessTransform interface (not unit variance: the plan's output scale is used).
+
+    Hermite expansion ``u^3 = He3(u) + 3 He1(u)``; moments of ``U^3`` for a standard normal U:
+    mean 0, variance E[U^6] = 15, skewness 0, kurtosis E[U^12] / 15^2 = 10395 / 225 = 46.2
+    (normal moments (2k - 1)!!, e.g. Papoulis, Probability, Random Variables and Stochastic Processes).
+    """
+
+    family = "cube"
+    series_order = 3
+    peak_limit = None
+
+    def apply(self, u, out=None):
+        return np.power(u, 3, out=out)
+
+    def moments(self):
+        return 0.0, 15.0, 0.0, 10395.0 / 225.0
+
+    def output_variance(self):
+        return 15.0
+
+    def hermite_coefficients(self, n_max):
+        a = np.zeros(n_max + 1)
+        a[1], a[3] = 3.0, 1.0
+        return a[: n_max + 1]
+
+    def gaussian_level(self, y):
+        return np.cbrt(y)
+
+
 def test_transform_hook_is_applied_after_overlap_add_and_scaled():
     """A memoryless transform of the unit-variance stream, then the output scale (hook for non-Gaussian drives)."""
     plan = plan_synthesis(BRACKET, 100.0, RATE_HZ, memory_budget_bytes=SMALL_BUDGET, spill_highpass=False)
     gaussian = Synthesizer(plan, 8).samples()[:, 0]
     unit = gaussian / plan.output_scale
 
-    def cube(u):
-        return u**3
-
-    shaped = plan_synthesis(BRACKET, 100.0, RATE_HZ, memory_budget_bytes=SMALL_BUDGET, transform=cube, output_scale=2.0,
-                            spill_highpass=False)
+    shaped = plan_synthesis(BRACKET, 100.0, RATE_HZ, memory_budget_bytes=SMALL_BUDGET, transform=_Cube(),
+                            output_scale=2.0, spill_highpass=False)
     out = Synthesizer(shaped, 8).samples()[:, 0]
     np.testing.assert_allclose(out, 2.0 * unit**3, rtol=1e-9, atol=1e-12)
     assert np.mean(unit**2) == pytest.approx(1.0, rel=0.02)  # the stream is made at unit variance

@@ -81,6 +81,11 @@ def clipped_gaussian_variance(clip_level_sigma: float) -> float:
         ``E[min(max(u, -c), c)^2] = (2 Phi(c) - 1) - 2 c phi(c) + 2 c^2 (1 - Phi(c))``
         in units of the Gaussian's variance.
 
+    Examples
+    --------
+    >>> round(clipped_gaussian_variance(3.0), 6)
+    0.995007
+
     References
     ----------
     .. [1] J. H. Van Vleck and D. Middleton, "The spectrum of clipped noise",
@@ -105,6 +110,11 @@ def clipped_gaussian_kurtosis(clip_level_sigma: float) -> float:
     kurtosis : float
         ``E[y^4] / E[y^2]^2`` (dimensionless; 3 as c -> infinity, 1 as c -> 0),
         with ``E[y^4] = 3 (2 Phi(c) - 1) - 2 phi(c) (c^3 + 3c) + 2 c^4 (1 - Phi(c))``.
+
+    Examples
+    --------
+    >>> round(clipped_gaussian_kurtosis(3.0), 4)
+    2.9206
 
     References
     ----------
@@ -135,6 +145,11 @@ def clip_hermite_coefficients(clip_level_sigma: float, n_max: int) -> np.ndarray
         Hermite polynomials): ``a_1 = 2 Phi(c) - 1``, odd ``n >= 3``:
         ``a_n = -2 phi(c) He_{n-2}(c) / n!``, even ``n`` (and ``a_0``): 0.
         Units of the Gaussian's standard deviation.
+
+    Examples
+    --------
+    >>> np.round(clip_hermite_coefficients(3.0, 3), 4)
+    array([ 0.    ,  0.9973,  0.    , -0.0044])
 
     References
     ----------
@@ -178,6 +193,11 @@ class ClipTransform:
     and peak ``crest_factor = c / sigma_c`` (in units of its own RMS). Build
     it from a crest factor with :func:`solve_clip_level`.
 
+    Examples
+    --------
+    >>> round(ClipTransform(3.0).crest_factor, 4)
+    3.0075
+
     References
     ----------
     .. [1] J. H. Van Vleck and D. Middleton, "The spectrum of clipped noise",
@@ -198,6 +218,28 @@ class ClipTransform:
     def crest_factor(self) -> float:
         """Peak / RMS of the output, ``c / sigma_c`` (dimensionless)."""
         return self.clip_level_sigma / self.clipped_std
+
+    @property
+    def family(self) -> str:
+        """``"clip"``, as sidecars record it."""
+        return "clip"
+
+    @property
+    def peak_limit(self) -> float:
+        """Largest possible ``|apply(u)|``: the crest factor (output RMS units)."""
+        return float(self.crest_factor)
+
+    def gaussian_level(self, y) -> np.ndarray:
+        """``g^-1(y)`` in sigma of the Gaussian: ``y sigma_c`` inside ``±crest_factor``, ``±inf`` at or beyond it.
+
+        No Gaussian level reaches the far side of a clipped value, so the
+        bounds map to infinities (the record never exceeds them).
+        """
+        y = np.asarray(y, dtype=np.float64)
+        crest = self.crest_factor
+        u = y * self.clipped_std
+        u = np.where(y >= crest, np.inf, u)
+        return np.where(y <= -crest, -np.inf, u)
 
     @property
     def series_order(self) -> int:
@@ -358,6 +400,11 @@ def solve_clip_level(crest_factor: float) -> ClipTransform:
     ------
     OutOfRangeError
         If `crest_factor` is not in (1, 10].
+
+    Examples
+    --------
+    >>> round(solve_clip_level(3.0).clip_level_sigma, 4)
+    2.9923
 
     References
     ----------

@@ -47,6 +47,7 @@ __all__ = [
     "gaussian_correlation",
     "hermite_correlation_weights",
     "output_correlation",
+    "highpass_moment_retention",
     "predict_output_asd",
 ]
 
@@ -79,6 +80,11 @@ def hermite_correlation_weights(coefficients, variance: float | None = None) -> 
     b : ndarray
         ``b[0] = 0``, ``b[n]`` for n >= 1, summing to 1 (dimensionless);
         may be one or two entries longer than `coefficients` (remainder).
+
+    Examples
+    --------
+    >>> np.round(hermite_correlation_weights([0.0, 1.0, 0.0, 0.1]), 4)
+    array([0.    , 0.9434, 0.    , 0.0566])
 
     References
     ----------
@@ -157,6 +163,12 @@ def output_correlation(rho_u, weights) -> np.ndarray:
     rho_y : ndarray
         Correlation coefficient of the transformed process (dimensionless).
 
+    Examples
+    --------
+    >>> weights = hermite_correlation_weights([0.0, 1.0, 0.0, 0.1])
+    >>> np.round(output_correlation(np.array([1.0, 0.5]), weights), 4)
+    array([1.    , 0.4788])
+
     References
     ----------
     .. [1] F. G. Mehler, J. Reine Angew. Math. 66, 1866.
@@ -186,6 +198,12 @@ def gaussian_correlation(rho_y, weights, iterations: int = 40) -> np.ndarray:
     -------
     rho_u : ndarray
         Gaussian correlation coefficients (dimensionless).
+
+    Examples
+    --------
+    >>> weights = hermite_correlation_weights([0.0, 1.0, 0.0, 0.1])
+    >>> np.round(gaussian_correlation(output_correlation(np.array([1.0, 0.5]), weights), weights), 6)
+    array([1. , 0.5])
 
     References
     ----------
@@ -312,6 +330,14 @@ def predict_output_asd(gaussian_psd_per_hz, df_hz: float, transform, output_vari
         Predicted output ASD in g^2/Hz; ``df_hz * sum`` equals
         `output_variance_g2`.
 
+    Examples
+    --------
+    >>> from vibsynth.transforms.hermite import HermiteTransform
+    >>> psd = np.zeros(513); psd[50:200] = 1.0
+    >>> out = predict_output_asd(psd, 1.0, HermiteTransform.identity(), 150.0)
+    >>> bool(np.allclose(out, psd, atol=1e-9))
+    True
+
     References
     ----------
     .. [1] F. Yamazaki and M. Shinozuka, "Digital generation of non-Gaussian
@@ -379,6 +405,10 @@ class CompensationResult:
     series_remainder : float
         Share of the output variance beyond the Hermite order used (carried
         as one extra term so the variance is exact).
+
+    Examples
+    --------
+    See :func:`compensate_spectrum`, which returns one.
 
     References
     ----------
@@ -472,6 +502,14 @@ def compensate_spectrum(
     ------
     InputError
         For a malformed grid or parameter.
+
+    Examples
+    --------
+    >>> from vibsynth.transforms.hermite import solve_cubic_hermite
+    >>> target = np.zeros(1025); target[100:600] = 0.01
+    >>> result = compensate_spectrum(target, 2.0, solve_cubic_hermite(0.0, 5.0))
+    >>> result.achievable
+    True
 
     References
     ----------
@@ -624,3 +662,52 @@ def _summarise(target, df_hz, variance_g2, band, gaussian, output, spill, shape_
         spillover_lines=spill_lines,
         series_remainder=remainder,
     )
+
+
+def highpass_moment_retention(gaussian_psd_per_hz, highpass_response) -> tuple[float, float]:
+    """Shares of the second- and third-order Hermite terms that a linear filter keeps.
+
+    For ``y = u + a2 He2(u) + a3 He3(u)`` the leading skewness term is
+    ``6 a2 E[...]`` and the leading excess-kurtosis term ``24 a3``; through a
+    filter ``h`` they become ``6 a2 p2`` and ``24 a3 p3`` with
+    ``p_n = sum_tau h(tau) rho(tau)^n`` (Mehler: ``E[u^2 He2(u')] = 2 rho^2``,
+    ``E[u^3 He3(u')] = 6 rho^3``), i.e. the share of the spectrum of ``rho^n``
+    passed by the filter's (zero-phase) response.
+
+    Parameters
+    ----------
+    gaussian_psd_per_hz : array_like, shape (N/2 + 1,)
+        One-sided spectrum of the Gaussian stream on the lines of a frame of N
+        samples (any scale), 1/Hz.
+    highpass_response : array_like, shape (N/2 + 1,)
+        Real zero-phase response of the filter on the same lines.
+
+    Returns
+    -------
+    p2, p3 : float
+        Retained shares (dimensionless, 1 for no filter).
+
+    Examples
+    --------
+    >>> psd = np.zeros(513); psd[50:200] = 1.0
+    >>> highpass_moment_retention(psd, np.ones(513))
+    (1.0, 1.0)
+
+    References
+    ----------
+    F. G. Mehler, J. Reine Angew. Math. 66, 1866 (bivariate normal expansion);
+    Winterstein (1988), leading-order moments of the cubic Hermite model.
+    """
+    psd = np.asarray(gaussian_psd_per_hz, dtype=np.float64)
+    response = np.asarray(highpass_response, dtype=np.float64)
+    n = 2 * (psd.size - 1)
+    weights = np.full(psd.size, 2.0)
+    weights[0] = weights[-1] = 1.0
+    rho = fft.irfft(psd * weights, n=n)
+    rho /= rho[0]
+    shares = []
+    for order in (2, 3):
+        lines = fft.rfft(rho**order).real * weights
+        shares.append(float(np.sum(lines * response) / np.sum(lines)))
+    return shares[0], shares[1]
+

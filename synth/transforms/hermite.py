@@ -89,6 +89,11 @@ def cubic_hermite_moments(c3, c4):
     ``E[z^4] = 3 + 24 c4 + 252 c4^2 + 1296 c4^3 + 3348 c4^4
     + c3^2 (60 + 576 c4 + 2232 c4^2) + 60 c3^4``.
 
+    Examples
+    --------
+    >>> tuple(round(float(m), 4) for m in cubic_hermite_moments(0.0, 0.1))
+    (1.06, 0.0, 9.5508)
+
     References
     ----------
     .. [1] S. R. Winterstein, "Nonlinear vibration models for extremes and
@@ -126,6 +131,11 @@ def cubic_hermite_skewness_kurtosis(c3, c4):
         ``E[z^3] / E[z^2]^1.5`` and ``E[z^4] / E[z^2]^2`` (kurtosis 3 for a
         Gaussian), dimensionless.
 
+    Examples
+    --------
+    >>> tuple(round(float(m), 4) for m in cubic_hermite_skewness_kurtosis(0.0, 0.1))
+    (0.0, 8.5002)
+
     References
     ----------
     .. [1] S. R. Winterstein, "Nonlinear vibration models for extremes and
@@ -159,6 +169,11 @@ def winterstein_1988_coefficients(skewness: float, kurtosis: float) -> tuple[flo
     ------
     OutOfRangeError
         If ``kurtosis < 3`` (the closed forms are for the softening case).
+
+    Examples
+    --------
+    >>> tuple(round(float(c), 4) for c in winterstein_1988_coefficients(0.0, 4.0))
+    (0.0, 0.0323)
 
     References
     ----------
@@ -359,6 +374,11 @@ class HermiteTransform:
     Build instances with :func:`solve_cubic_hermite`, :meth:`identity`,
     :meth:`softening` or :meth:`hardening_form`.
 
+    Examples
+    --------
+    >>> HermiteTransform.identity().is_identity, HermiteTransform.softening(0.0, 0.1).family
+    (True, 'hermite')
+
     References
     ----------
     .. [1] S. R. Winterstein, "Nonlinear vibration models for extremes and
@@ -487,6 +507,20 @@ class HermiteTransform:
     def is_identity(self) -> bool:
         """True for the Gaussian case (no distortion)."""
         return self.c3 == 0.0 and self.c4 == 0.0
+
+    @property
+    def family(self) -> str:
+        """``"hermite"`` (either form), as sidecars record it."""
+        return "hermite"
+
+    @property
+    def peak_limit(self) -> None:
+        """None: a cubic Hermite output is unbounded."""
+        return None
+
+    def gaussian_level(self, y) -> np.ndarray:
+        """``g^-1(y)``: the Gaussian level that maps to output level ``y`` (:meth:`inverse`, a new array)."""
+        return self.inverse(np.asarray(y, dtype=np.float64))
 
     @property
     def series_order(self) -> int:
@@ -792,6 +826,11 @@ class KurtosisRange:
     max_abs_skewness_softening, max_abs_skewness_hardening : float
         Largest |skewness| each form reaches at all.
 
+    Examples
+    --------
+    >>> reachable_kurtosis_range(0.0).contains(6.0)
+    True
+
     References
     ----------
     .. [1] S. R. Winterstein, "Nonlinear vibration models for extremes and
@@ -929,6 +968,11 @@ def reachable_kurtosis_range(skewness: float) -> KurtosisRange:
     KurtosisRange
         The ranges (approximate limits, to about 3 significant digits).
 
+    Examples
+    --------
+    >>> reachable_kurtosis_range(0.0).describe()
+    'at skewness 0 the reachable kurtosis is 3 to 46.2 (softening form) or 1.291 to 3 (hardening form) (approximate limits, not attained)'
+
     References
     ----------
     .. [1] S. R. Winterstein, "Nonlinear vibration models for extremes and
@@ -1032,6 +1076,12 @@ def solve_cubic_hermite(skewness: float, kurtosis: float) -> HermiteTransform:
         If no monotone cubic reaches the target; the message states the
         reachable kurtosis range at that skewness (e.g. 3 to 46.2 for the
         softening form at skewness 0).
+
+    Examples
+    --------
+    >>> transform = solve_cubic_hermite(0.0, 6.0)
+    >>> round(transform.c4, 5), round(transform.moments()[3], 9)
+    (0.06886, 6.0)
 
     References
     ----------

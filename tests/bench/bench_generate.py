@@ -34,7 +34,8 @@ REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
 from vibsynth.profile.asd import AsdProfile  # noqa: E402
-from vibsynth.generate.pipeline import Synthesizer, generate_samples, plan_synthesis  # noqa: E402
+from vibsynth.generate.pipeline import Synthesizer, generate_samples  # noqa: E402
+from vibsynth.generate.plan import plan_synthesis  # noqa: E402
 
 RATE_HZ = 51200.0
 PROFILE = AsdProfile([20, 80, 350, 2000], [0.01, 0.04, 0.04, 0.005], name="invented-bench")

@@ -34,9 +34,11 @@ REPO = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(REPO))
 
 from vibsynth.transforms import compensation  # noqa: E402
-from vibsynth.generate.nongaussian import nongaussian_plan, plan_transform  # noqa: E402
+from vibsynth.generate.design import nongaussian_plan  # noqa: E402
+from vibsynth.transforms.choice import plan_transform  # noqa: E402
 from vibsynth.profile.asd import AsdProfile  # noqa: E402
-from vibsynth.generate.pipeline import Synthesizer, plan_synthesis  # noqa: E402
+from vibsynth.generate.pipeline import Synthesizer  # noqa: E402
+from vibsynth.generate.plan import plan_synthesis  # noqa: E402
 
 RATE_HZ = 4096.0
 PROFILE = AsdProfile([20, 40, 600, 1000], [0.01, 0.04, 0.04, 0.01], name="invented-bench")
@@ -80,7 +82,7 @@ def cost(samples: int, rounds: int) -> None:
                 plan, design = nongaussian_plan(PROFILE, base, plan_transform(**options))
                 planning[name] = min(planning[name], time.perf_counter() - start)
                 start = time.perf_counter()
-                drain(design.synthesizer(plan, 1))
+                drain(Synthesizer(plan, 1))
                 synthesis[name] = min(synthesis[name], time.perf_counter() - start)
         gaussian = synthesis["gaussian"]
         print(f"{mode}, {samples} samples ({duration:g} s), frame {base.frame_length}: Gaussian {gaussian:.3f} s "
@@ -135,7 +137,7 @@ def statistics(seeds: int) -> None:
         plan, design = nongaussian_plan(PROFILE, base, plan_transform(**options))
         rows = []
         for seed in range(1, seeds + 1):
-            x = design.synthesizer(plan, seed).samples()[:, 0]
+            x = Synthesizer(plan, seed).samples()[:, 0]
             f, p = scipy.signal.welch(x, fs=RATE_HZ, nperseg=2048)
             res = f[1] - f[0]
             judged = (f >= 20 + 2 * res) & (f <= 1000 - 2 * res)

@@ -48,9 +48,11 @@ sys.path.insert(0, str(REPO))
 
 from vibsynth.jobs import default_workers  # noqa: E402
 from vibsynth.io.drivefile import write_drive  # noqa: E402
-from vibsynth.generate.nongaussian import nongaussian_plan, plan_transform  # noqa: E402
+from vibsynth.generate.design import nongaussian_plan  # noqa: E402
+from vibsynth.transforms.choice import plan_transform  # noqa: E402
 from vibsynth.profile.asd import AsdProfile  # noqa: E402
-from vibsynth.generate.pipeline import Synthesizer, generate_samples, plan_synthesis  # noqa: E402
+from vibsynth.generate.pipeline import Synthesizer, generate_samples  # noqa: E402
+from vibsynth.generate.plan import plan_synthesis  # noqa: E402
 from vibsynth.analysis.verify import verify_record  # noqa: E402
 from vibsynth.analysis.welch import welch_asd  # noqa: E402
 
@@ -153,7 +155,7 @@ def main() -> None:
         def kurtic_job():
             base = plan_synthesis(PROFILE, duration, RATE_HZ, memory_budget_bytes=budget)
             plan, design = nongaussian_plan(PROFILE, base, plan_transform(kurtosis=6.0))
-            for _ in design.synthesizer(plan, 1, workers).iter_chunks(1 << 16):
+            for _ in Synthesizer(plan, 1, workers).iter_chunks(1 << 16):
                 pass
 
         gaussian = best_of(gaussian_job, rounds)

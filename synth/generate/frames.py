@@ -1,0 +1,229 @@
+"""Frames: line amplitudes, random-phase frame synthesis, the sine window and the raised-cosine ramp.
+
+A frame of N samples at rate ``fs`` has lines ``f_k = k fs / N``.  Giving line
+``0 < k < N/2`` the complex amplitude ``|X_k| = N sqrt(S(f_k) df / 2)``
+(``df = fs/N``) with a uniform random phase and taking numpy's ``irfft``
+makes a periodic frame whose variance is exactly ``sum S(f_k) df`` and whose
+periodogram equals ``S(f_k)`` at every line.  The DC and Nyquist lines carry
+nothing.
+
+Randomness per frame: one standard normal pair per line (``N + 2`` normals for
+a frame of ``N``).  ``amplitude="rayleigh"`` uses the pair as it is (complex
+Gaussian line: Rayleigh amplitude, uniform phase, a true Gaussian record);
+``amplitude="fixed"`` keeps only its direction (uniform phase, amplitude fixed
+by the target, an exact periodogram).  The two modes of one seed therefore
+share their phases.
+
+References
+----------
+Shinozuka, M. & Jan, C.-M., "Digital simulation of random processes and its
+applications", Journal of Sound and Vibration 25(1), 1972.
+Princen, J. P. & Bradley, A. B., "Analysis/synthesis filter bank design based
+on time domain aliasing cancellation", IEEE Trans. ASSP 34(5), 1986 (the sine window).
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Sequence
+
+import numpy as np
+import scipy.fft
+
+from vibsynth.errors import InputError
+
+#: Amplitude modes: ``fixed`` (random phase only; exact periodogram) and
+#: ``rayleigh`` (complex Gaussian lines; a true Gaussian realisation).
+from vibsynth._checks import AMPLITUDE_MODES  # noqa: E402  (defined once, light for the command line)
+
+
+def _check_choice(value, allowed: Sequence[str], what: str) -> str:
+    """``value`` as a lower-case member of ``allowed``, else an InputError naming ``what``."""
+    text = str(value).strip().lower()
+    if text not in allowed:
+        raise InputError(f"{what} {value!r} is not one of {', '.join(allowed)}", what)
+    return text
+
+
+def line_amplitudes(line_spectrum, rate_hz: float, frame_length: int) -> np.ndarray:
+    """Line magnitudes ``|X_k| = N sqrt(S(f_k) df / 2)`` for numpy's ``irfft`` (backward norm).
+
+    Parameters
+    ----------
+    line_spectrum : array_like, shape (N//2 + 1,)
+        One-sided spectral density at ``f_k = k rate_hz / N`` in U^2/Hz (e.g. g^2/Hz).
+        The DC and (for even N) Nyquist lines are ignored (set to 0).
+    rate_hz : float
+        Sample rate in Hz.
+    frame_length : int
+        Frame length N in samples.
+
+    Returns
+    -------
+    numpy.ndarray, shape (N//2 + 1,)
+        Magnitudes in U (times N), zero at DC and Nyquist.
+
+    Examples
+    --------
+    >>> line_amplitudes([0.0, 1.0, 1.0, 0.0], 6.0, 6)
+    array([0.        , 4.24264069, 4.24264069, 0.        ])
+
+    References
+    ----------
+    Shinozuka & Jan (1972), spectral representation; the discrete Parseval
+    relation of the DFT.
+    """
+    spectrum = _clean_line_spectrum(line_spectrum, frame_length)
+    df = float(rate_hz) / frame_length
+    return frame_length * np.sqrt(spectrum * df / 2.0)
+
+
+
+
+def _clean_line_spectrum(line_spectrum, frame_length: int) -> np.ndarray:
+    spectrum = np.array(line_spectrum, dtype=float).ravel()
+    if spectrum.size != frame_length // 2 + 1:
+        raise InputError(
+            f"line spectrum has {spectrum.size} values; a frame of {frame_length} samples needs {frame_length // 2 + 1}",
+            "line_spectrum",
+        )
+    if not math.isfinite(float(np.sum(spectrum))) or float(np.min(spectrum)) < 0:
+        raise InputError("line spectrum values must be finite and >= 0", "line_spectrum")
+    spectrum[0] = 0.0
+    if frame_length % 2 == 0:
+        spectrum[-1] = 0.0
+    return spectrum
+
+
+def _band_of(amplitudes: np.ndarray) -> tuple[int, int]:
+    """Index range [lo, hi) holding every non-zero line."""
+    nonzero = np.flatnonzero(amplitudes)
+    if nonzero.size == 0:
+        return 0, 0
+    return int(nonzero[0]), int(nonzero[-1]) + 1
+
+
+def _draw_lines(rng: np.random.Generator, amplitudes: np.ndarray, amplitude: str, band=None) -> np.ndarray:
+    """Complex line values: a normal pair per line, scaled (rayleigh) or normalised (fixed).
+
+    Every line draws its pair (so the draws do not depend on the spectrum);
+    only lines inside ``band`` (the non-zero amplitudes) are then shaped.
+    """
+    spectrum = np.empty(amplitudes.size, dtype=np.complex128)
+    rng.standard_normal(out=spectrum.view(np.float64))
+    lo, hi = _band_of(amplitudes) if band is None else band
+    spectrum[:lo] = 0.0
+    spectrum[hi:] = 0.0
+    part = spectrum[lo:hi]
+    weights = amplitudes[lo:hi]
+    if amplitude == "rayleigh":
+        part *= weights * math.sqrt(0.5)
+        return spectrum
+    magnitude = np.abs(part)
+    zero = magnitude == 0.0
+    if np.any(zero):  # probability zero; a phase of 0 keeps the amplitude exact
+        part[zero] = 1.0
+        magnitude[zero] = 1.0
+    np.divide(weights, magnitude, out=magnitude)
+    part *= magnitude
+    return spectrum
+
+
+def synthesize_frame(line_spectrum, rate_hz: float, rng: np.random.Generator, amplitude: str = "fixed") -> np.ndarray:
+    """One periodic random-phase frame whose spectrum is ``line_spectrum``.
+
+    Parameters
+    ----------
+    line_spectrum : array_like, shape (N//2 + 1,)
+        One-sided spectral density in U^2/Hz at ``f_k = k rate_hz / N``,
+        ``k = 0 .. N//2``; N is ``2 (len - 1)``.  DC and Nyquist are ignored.
+    rate_hz : float
+        Sample rate in Hz.
+    rng : numpy.random.Generator
+        Source of the phases (and amplitudes): ``N + 2`` standard normals.
+    amplitude : {"fixed", "rayleigh"}
+        ``fixed``: ``|X_k| = N sqrt(S df / 2)`` exactly, uniform phase; the
+        frame's variance is exactly ``sum S(f_k) df`` and its periodogram is
+        ``S(f_k)`` at every line.  ``rayleigh``: complex Gaussian lines with
+        that RMS magnitude (a Gaussian realisation; variance equal in expectation).
+
+    Returns
+    -------
+    numpy.ndarray, shape (N,)
+        The frame in U (e.g. g).
+
+    Examples
+    --------
+    >>> frame = synthesize_frame(np.r_[0.0, np.ones(7), 0.0], 16.0, np.random.default_rng(1))
+    >>> round(float(np.var(frame)), 12)  # sum S df over the 7 lines, df = 1 Hz
+    7.0
+
+    References
+    ----------
+    Shinozuka & Jan (1972); numpy/scipy ``irfft`` normalisation (backward:
+    ``x_n = (1/N) sum_k X_k exp(2 pi i k n / N)``).
+    """
+    amplitude = _check_choice(amplitude, AMPLITUDE_MODES, "amplitude")
+    spectrum = np.asarray(line_spectrum, dtype=float)
+    frame_length = 2 * (spectrum.size - 1)
+    if frame_length < 2:
+        raise InputError("line spectrum needs at least two values", "line_spectrum")
+    amplitudes = line_amplitudes(spectrum, rate_hz, frame_length)
+    lines = _draw_lines(rng, amplitudes, amplitude)
+    return scipy.fft.irfft(lines, n=frame_length, overwrite_x=True)
+
+
+def sine_window(frame_length: int) -> np.ndarray:
+    """The sine window ``w[n] = sin(pi (n + 1/2) / N)``; ``w[n]^2 + w[n + N/2]^2 = 1``.
+
+    Parameters
+    ----------
+    frame_length : int
+        N, even.
+
+    Returns
+    -------
+    numpy.ndarray, shape (N,)
+        Window values (dimensionless).
+
+    Examples
+    --------
+    >>> w = sine_window(8)
+    >>> bool(np.allclose(w[:4] ** 2 + w[4:] ** 2, 1.0))
+    True
+
+    References
+    ----------
+    Princen & Bradley (1986), the sine window for 50 % overlap (power complementary).
+    """
+    n = np.arange(frame_length, dtype=float)
+    return np.sin(np.pi * (n + 0.5) / frame_length)
+
+
+def raised_cosine_ramp(length_samples: int) -> np.ndarray:
+    """Fade-in factors ``0.5 (1 - cos(pi n / R))``, ``n = 0 .. R-1``: 0 at the first sample, rising to 1.
+
+    Parameters
+    ----------
+    length_samples : int
+        R, the ramp length in samples.
+
+    Returns
+    -------
+    numpy.ndarray, shape (R,)
+        Factors (dimensionless); reverse them for the fade-out.
+
+    Examples
+    --------
+    >>> raised_cosine_ramp(4)
+    array([0.        , 0.14644661, 0.5       , 0.85355339])
+
+    References
+    ----------
+    Raised-cosine (Hann) taper, Blackman & Tukey, *The Measurement of Power
+    Spectra*, Dover 1958.
+    """
+    n = np.arange(int(length_samples), dtype=float)
+    return 0.5 * (1.0 - np.cos(np.pi * n / max(int(length_samples), 1)))
+
+
