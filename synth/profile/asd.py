@@ -381,7 +381,7 @@ class AsdProfile:
         hi = np.where(inside, hi, f[1:])
         with np.errstate(all="ignore"):
             s_lo = s[:-1] * (lo / f[:-1]) ** exponent
-            log_ratio = np.log(hi / lo)
+            log_ratio = np.log1p((hi - lo) / lo)  # ln(hi/lo), accurate for a bin much narrower than lo
             part = s_lo * lo ** (power + 1.0) * log_ratio * exprel((exponent + power + 1.0) * log_ratio)
         return np.sum(np.where(inside, part, 0.0), axis=-1)
 

@@ -228,32 +228,39 @@ def parse_csv_profile(text: str, source: str = "<csv>") -> AsdProfile:
     return AsdProfile.from_breakpoints(triples, name=Path(source).stem, source=source)
 
 
-_HEADER_SPLIT = re.compile(r"[,;\t]")
+def _header_cells(header: str) -> list[str]:
+    """A header row's cells: split at ``,`` ``;`` and tabs outside brackets, empty cells dropped.
 
-
-def _asd_column(header: str) -> str:
-    """The ASD column of a header row: its second cell.
-
-    Cells are separated by ``,`` ``;`` or tabs; a header without those is split
-    at its first run of spaces (the frequency column is one word, e.g.
-    ``frequency_hz asd_g2_per_hz``) and the rest is the ASD column.
+    A header without such separators is split at its first run of spaces (the
+    frequency column is one word, e.g. ``frequency_hz asd_g2_per_hz``); the
+    rest is the ASD column.
     """
-    cells = [cell.strip() for cell in _HEADER_SPLIT.split(header) if cell.strip()]
+    cells, depth, start = [], 0, 0
+    for index, char in enumerate(header):
+        if char in "([{":
+            depth += 1
+        elif char in ")]}":
+            depth = max(depth - 1, 0)
+        elif char in ",;\t" and depth == 0:
+            cells.append(header[start:index])
+            start = index + 1
+    cells.append(header[start:])
+    cells = [cell.strip() for cell in cells if cell.strip()]
     if len(cells) == 1:
         cells = cells[0].split(None, 1)
-    return cells[1] if len(cells) >= 2 else ""
+    return cells
 
 
 def _header_unit(header: str, source: str, location: str):
-    """The ASD unit named by a CSV header's ASD column; refuses a column that names neither or both."""
-    cells = [cell for cell in _HEADER_SPLIT.split(header) if cell.strip()]
+    """The ASD unit named by a CSV header's ASD column (its second cell); refuses a column naming neither or both."""
+    cells = _header_cells(header)
     if len(cells) > 2:
         raise InputError(
             f"header {header!r} has {len(cells)} columns; a profile table has 2 (frequency in Hz, ASD with its unit)",
             source,
             location,
         )
-    column = _asd_column(header)
+    column = cells[1] if len(cells) == 2 else ""
     found = asd_units_named_in(column)
     if len(found) == 1:
         return found[0][0]
