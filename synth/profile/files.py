@@ -266,9 +266,9 @@ def _header_unit(header: str, source: str, location: str):
         return found[0][0]
     if not found:
         start = min((i for i in (column.find("("), column.find("[")) if i >= 0), default=0)
-        token = column[start:].strip() or "nothing"
+        found_text = f"found {column[start:].strip()!r}" if column else "no ASD column"
         raise InputError(
-            f"header {header!r}: the ASD column names no accepted unit (found {token!r}); "
+            f"header {header!r}: the ASD column names no accepted unit ({found_text}); "
             f"name {ACCEPTED_SPELLINGS}, or drop the header row (a table without one is read as {G2_PER_HZ.name})",
             source,
             location,
