@@ -111,7 +111,11 @@ BAD_PROFILES = [
     ("neg_asd.csv", "20,0.04\n2000,-0.01\n", "row 2: ASD -0.01 must be > 0"),
     ("zero_asd.csv", "20,0.04\n2000,0\n", "row 2: ASD 0 must be > 0"),
     ("dup.csv", "20,0.04\n20,0.05\n2000,0.04\n", "row 2: frequency 20 Hz repeats"),
-    ("decreasing.csv", "f,asd\n200,0.04\n20,0.05\n", "row 3: frequency 20 Hz is below"),
+    # The header names its unit: a header naming none is refused since issue 10 item 1 (no guessing).
+    ("decreasing.csv", "f,asd_g2_per_hz\n200,0.04\n20,0.05\n", "row 3: frequency 20 Hz is below"),
+    ("no_unit.csv", "f,asd\n20,0.04\n200,0.05\n", "row 1: header 'f,asd': the ASD column names no accepted unit"),
+    ("mm_unit.csv", "f (Hz),ASD (mm^2/s^4/Hz)\n20,0.04\n200,0.05\n", "found '(mm^2/s^4/Hz)'"),
+    ("two_units.csv", "f (Hz),ASD (g^2/Hz = 96.17 (m/s^2)^2/Hz)\n20,0.04\n200,0.05\n", "names two units"),
     ("three_cols.csv", "20,0.04,1\n2000,0.04,1\n", "row 1: expected 2 columns"),
     ("one_col.csv", "20\n2000\n", "expected 2 columns"),
     ("one_point.csv", "20,0.04\n", "at least two breakpoints"),

@@ -690,7 +690,7 @@ def make_plan(
         lo = max(int(math.floor(profile.frequency_min_hz / df)) - 1, 0)
         hi = min(int(math.ceil(top / df)) + 2, lines)
         values = np.zeros(lines)
-        values[lo:hi] = profile.evaluate(np.arange(lo, hi) * df)
+        values[lo:hi] = profile.line_spectrum(df, np.arange(lo, hi))
     else:
         values = np.asarray(spectrum(np.arange(lines) * df), dtype=float)
         if values.shape != (lines,):

@@ -19,9 +19,13 @@ TOML profile format (vibsynth's own)::
 Each breakpoint gives ``frequency`` (Hz) and exactly one of ``asd`` and
 ``slope_db_per_octave``.
 
-CSV: two columns, frequency in Hz and ASD in g^2/Hz, separated by commas,
-semicolons, tabs or spaces; an optional header row; ``#`` starts a comment.
-A header whose second column names ``(m/s^2)^2/Hz`` switches the unit.
+CSV: two columns, frequency in Hz and ASD, separated by commas, semicolons,
+tabs or spaces; ``#`` starts a comment.  Without a header row the ASD is in
+g^2/Hz.  A header row's ASD column (its second cell) must name its unit, one of
+the spellings in :mod:`vibsynth.profile.units` (``g^2/Hz``, ``g2/Hz``,
+``(m/s^2)^2/Hz``, ``m^2/s^4/Hz``, ...), e.g. ``frequency (Hz), ASD (m^2/s^4/Hz)``
+or ``frequency_hz,asd_g2_per_hz``; a header that names no unit, or both,
+is refused.  The TOML ``unit`` key accepts the same spellings.
 """
 
 from __future__ import annotations
@@ -37,19 +41,8 @@ from importlib import resources
 from pathlib import Path
 
 from vibsynth.errors import InputError
-from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
-
-#: Accepted spellings of the two ASD units, mapped to the factor that converts to g^2/Hz.
-_UNITS = {
-    "g^2/hz": 1.0,
-    "g2/hz": 1.0,
-    "g²/hz": 1.0,
-    "(m/s^2)^2/hz": 1.0 / STANDARD_GRAVITY_M_S2**2,
-    "(m/s2)2/hz": 1.0 / STANDARD_GRAVITY_M_S2**2,
-    "m^2/s^4/hz": 1.0 / STANDARD_GRAVITY_M_S2**2,
-    "(m/s²)²/hz": 1.0 / STANDARD_GRAVITY_M_S2**2,
-}
-_UNIT_HELP = "'g^2/Hz' or '(m/s^2)^2/Hz'"
+from vibsynth.profile.asd import AsdProfile
+from vibsynth.profile.units import ACCEPTED_SPELLINGS, G2_PER_HZ, asd_unit, asd_units_named_in
 
 _TOP_KEYS = ("name", "description", "unit", "level_db", "grms", "notes", "breakpoints")
 _POINT_KEYS = ("frequency", "asd", "slope_db_per_octave")
@@ -65,11 +58,11 @@ def _suggest(key: str, allowed) -> str:
 
 def _unit_factor(unit, source: str, location: str) -> float:
     if not isinstance(unit, str):
-        raise InputError(f"unit must be text, {_UNIT_HELP}", source, location)
-    key = unit.strip().lower().replace(" ", "")
-    if key not in _UNITS:
-        raise InputError(f"unknown unit '{unit}'; use {_UNIT_HELP}", source, location)
-    return _UNITS[key]
+        raise InputError(f"unit must be text: {ACCEPTED_SPELLINGS}", source, location)
+    found = asd_unit(unit)
+    if found is None:
+        raise InputError(f"unknown unit '{unit}'; use {ACCEPTED_SPELLINGS}", source, location)
+    return found.to_g2_per_hz
 
 
 def _number(value, source: str, location: str, what: str) -> float:
@@ -150,23 +143,39 @@ _SPLIT = re.compile(r"[,;\t ]+")
 
 
 def parse_csv_profile(text: str, source: str = "<csv>") -> AsdProfile:
-    """Parse a two-column CSV table: frequency (Hz), ASD (g^2/Hz).
+    """Parse a two-column CSV table: frequency (Hz), ASD (g^2/Hz unless the header names another unit).
 
     Parameters
     ----------
     text : str
         The table; separators ``,`` ``;`` tab or spaces; ``#`` comments; an
         optional header row (first data line whose cells are not numbers).
+        The header's ASD column must name its unit (g^2/Hz or
+        (m/s^2)^2/Hz, in any spelling of :mod:`vibsynth.profile.units`);
+        only that column is read for the unit.
     source : str
         File name for error messages.
 
     Returns
     -------
     AsdProfile
+        ASD in g^2/Hz ((m/s^2)^2/Hz values divided by g0^2 = 9.80665^2).
+
+    Raises
+    ------
+    InputError
+        A malformed row, or a header whose ASD column names no unit or two.
+
+    Examples
+    --------
+    >>> p = parse_csv_profile("frequency (Hz), ASD (m^2/s^4/Hz)\\n20,1\\n2000,1\\n")
+    >>> round(p.grms, 4)  # sqrt(1980) / 9.80665
+    4.5375
 
     References
     ----------
-    RFC 4180 (CSV), relaxed to the separators test labs use.
+    RFC 4180 (CSV), relaxed to the separators test labs use; g0 = 9.80665 m/s^2
+    (3rd CGPM 1901, ISO 80000-3).
     """
     factor = 1.0
     triples = []
@@ -181,9 +190,7 @@ def parse_csv_profile(text: str, source: str = "<csv>") -> AsdProfile:
         row = f"row {number}"
         if not triples and not header_seen and not _looks_numeric(cells[0]):
             header_seen = True
-            header = line.lower().replace(" ", "")
-            if "m/s" in header:
-                factor = 1.0 / STANDARD_GRAVITY_M_S2**2
+            factor = _header_unit(line, source, row).to_g2_per_hz
             continue
         if len(cells) != 2:
             raise InputError(
@@ -219,6 +226,59 @@ def parse_csv_profile(text: str, source: str = "<csv>") -> AsdProfile:
     if len(triples) < 2:
         raise InputError(f"a profile needs at least two breakpoints, got {len(triples)}", source)
     return AsdProfile.from_breakpoints(triples, name=Path(source).stem, source=source)
+
+
+def _header_cells(header: str) -> list[str]:
+    """A header row's cells: split at ``,`` ``;`` and tabs outside brackets, empty cells dropped.
+
+    A header without such separators is split at its first run of spaces (the
+    frequency column is one word, e.g. ``frequency_hz asd_g2_per_hz``); the
+    rest is the ASD column.
+    """
+    cells, depth, start = [], 0, 0
+    for index, char in enumerate(header):
+        if char in "([{":
+            depth += 1
+        elif char in ")]}":
+            depth = max(depth - 1, 0)
+        elif char in ",;\t" and depth == 0:
+            cells.append(header[start:index])
+            start = index + 1
+    cells.append(header[start:])
+    cells = [cell.strip() for cell in cells if cell.strip()]
+    if len(cells) == 1:
+        cells = cells[0].split(None, 1)
+    return cells
+
+
+def _header_unit(header: str, source: str, location: str):
+    """The ASD unit named by a CSV header's ASD column (its second cell); refuses a column naming neither or both."""
+    cells = _header_cells(header)
+    if len(cells) > 2:
+        raise InputError(
+            f"header {header!r} has {len(cells)} columns; a profile table has 2 (frequency in Hz, ASD with its unit)",
+            source,
+            location,
+        )
+    column = cells[1] if len(cells) == 2 else ""
+    found = asd_units_named_in(column)
+    if len(found) == 1:
+        return found[0][0]
+    if not found:
+        start = min((i for i in (column.find("("), column.find("[")) if i >= 0), default=0)
+        found_text = f"found {column[start:].strip()!r}" if column else "no ASD column"
+        raise InputError(
+            f"header {header!r}: the ASD column names no accepted unit ({found_text}); "
+            f"name {ACCEPTED_SPELLINGS}, or drop the header row (a table without one is read as {G2_PER_HZ.name})",
+            source,
+            location,
+        )
+    tokens = " and ".join(f"{unit.name} ({token!r})" for unit, token in found)
+    raise InputError(
+        f"header {header!r}: the ASD column names two units, {tokens}; name one, {ACCEPTED_SPELLINGS}",
+        source,
+        location,
+    )
 
 
 def _looks_numeric(cell: str) -> bool:
