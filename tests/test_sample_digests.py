@@ -54,3 +54,24 @@ def test_samples_match_version_0_1(case, tmp_path):
         assert digest != row["sha256"], f"{case} is listed as changed ({CHANGED_BY_FIX[case]}) but matches 0.1.0"
     else:
         assert digest == row["sha256"], f"{case}: samples differ from vibsynth 0.1.0"
+
+
+#: The same cases after the edge-line fix: every later change must keep these samples, or name its fix here.
+TABLE_AFTER_EDGE_FIX = json.loads(
+    (Path(__file__).parent / "data" / "sample_digests_edge_lines.json").read_text())["cases"]
+
+#: case -> why its samples changed since the edge-line table (a named defect fix). Empty: none changed.
+CHANGED_SINCE_EDGE_FIX: dict[str, str] = {}
+
+
+@pytest.mark.parametrize("case", sorted(TABLE_AFTER_EDGE_FIX))
+def test_samples_match_the_edge_line_table(case, tmp_path):
+    row = TABLE_AFTER_EDGE_FIX[case]
+    assert row["args"] == TABLE[case]["args"]
+    output = tmp_path / f"{case}.npy"
+    assert _generate(row["args"], output) == 0
+    digest = hashlib.sha256(output.read_bytes()).hexdigest()
+    if case in CHANGED_SINCE_EDGE_FIX:
+        assert digest != row["sha256"], f"{case} is listed as changed ({CHANGED_SINCE_EDGE_FIX[case]}) but matches"
+    else:
+        assert digest == row["sha256"], f"{case}: samples differ from the edge-line table"
