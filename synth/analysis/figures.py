@@ -19,7 +19,7 @@ from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.figure import Figure
 
 from vibsynth.errors import InputError
-from vibsynth.analysis.verify import Verification
+from vibsynth.analysis.verify import Verification, floor_percent
 
 PAPER = "#fbf8f1"
 INK = "#2b2b2b"
@@ -299,7 +299,7 @@ def summary_figure(result: Verification, title: str = "", lines: tuple = ()) -> 
         "Spectrum",
         f"  g RMS {d['grms_measured']:.4g} g measured, {d['grms_target']:.4g} g target ({d['grms_error_percent']:+.2f} %)",
         f"  worst line {d['asd']['max_deviation_db']:+.2f} dB at {d['asd']['max_deviation_frequency_hz']:g} Hz; "
-        f"{100 * d['asd']['fraction_within_tolerance']:.1f} % of {d['asd']['lines_judged']} judged lines in tolerance",
+        f"{floor_percent(d['asd']['fraction_within_tolerance'])} % of {d['asd']['lines_judged']} judged lines in tolerance",
         f"  Welch: Hann, 50 % overlap, {d['asd']['segments']} segments, {d['asd']['dof']:.0f} dof, "
         f"resolution {d['asd']['resolution_hz']:g} Hz",
         f"  {d['asd']['lines_near_edge_not_judged']} lines within {d['asd']['edge_exclusion_resolutions']:g} "
