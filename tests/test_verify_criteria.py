@@ -294,3 +294,28 @@ def test_false_alarms_over_twenty_seeds(amplitude, least):
         x = generate_samples(profile, 20.0, RATE_HZ, seed=1000 + seed, amplitude=amplitude)
         passed += verify_record(x, RATE_HZ, profile).passed
     assert passed >= least
+
+
+def test_docstring_examples_run():
+    import doctest
+
+    import vibsynth.analysis.stats
+    import vibsynth.analysis.verify
+
+    for module in (vibsynth.analysis.verify, vibsynth.analysis.stats):
+        result = doctest.testmod(module)
+        assert result.attempted > 0 and result.failed == 0
+
+
+def test_relaxed_rule_reports_the_crossing_rate_without_judging_it(base):
+    profile, x = base
+    spectrum = np.fft.rfft(x)
+    f = np.fft.rfftfreq(x.size, 1 / RATE_HZ)
+    spectrum[(f > 1500) & (f < 1800)] = 0.0  # removes high-frequency power: fewer crossings
+    y = np.fft.irfft(spectrum, x.size)
+    strict = verify_record(y, RATE_HZ, profile)
+    assert criterion(strict, "crossing_rate")["pass"] is False and "asd" in strict.failed
+    relaxed = verify_record(y, RATE_HZ, profile, Criteria(min_fraction_within=0.7, grms_tolerance_percent=20))
+    entry = criterion(relaxed, "crossing_rate")
+    assert entry["pass"] is False and entry["judged"] is False
+    assert "not judged" in relaxed.to_dict()["rule"]["crossing_rate"]
