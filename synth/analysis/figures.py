@@ -163,7 +163,7 @@ def asd_figure(result: Verification, title: str = "") -> Figure:
     if np.any(c.edge):
         ax.plot(c.frequencies_hz[c.edge], np.clip(c.measured_g2_per_hz[c.edge], floor * 1.25, None), ".",
                 color=MUTED, ms=5, label=f"within {criteria.edge_exclusion_resolutions:g} resolution widths of a "
-                                          "band edge: reported, not judged")
+                                          "band edge: judged against the window-smoothed target")
     ax.set_xlim(f_lo, f_hi)
     ax.set_xlabel("frequency (Hz)")
     ax.set_ylabel("ASD (g²/Hz)")
@@ -303,7 +303,7 @@ def summary_figure(result: Verification, title: str = "", lines: tuple = ()) -> 
         f"  Welch: Hann, 50 % overlap, {d['asd']['segments']} segments, {d['asd']['dof']:.0f} dof, "
         f"resolution {d['asd']['resolution_hz']:g} Hz",
         f"  {d['asd']['lines_near_edge_not_judged']} lines within {d['asd']['edge_exclusion_resolutions']:g} "
-        "resolution widths of a band edge: reported, not judged",
+        "resolution widths of a band edge: judged against the target seen through the Hann window",
     ]
     if d["asd"]["outside_ranges_hz"]:
         body.append("  outside tolerance at " + ", ".join(

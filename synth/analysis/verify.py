@@ -219,7 +219,8 @@ class Criteria:
             "grms": f"measured g RMS within +/-{self.grms_tolerance_percent:g} % of the target",
             "judged_lines": (
                 f"lines inside the target band, except within {self.edge_exclusion_resolutions:g} "
-                "resolution widths of a band edge"
+                "resolution widths of a band edge and lines where the Hann window smooths a narrow feature of "
+                "the target by more than 0.5 dB (both judged under asd_edges)"
             ),
         }
         alpha = f"{self.false_alarm_probability:g}"
@@ -230,7 +231,8 @@ class Criteria:
             f"limits at {alpha} overall, whichever is wider"
         )
         rules["asd_edges"] = (
-            f"lines within {self.edge_exclusion_resolutions:g} resolution widths of a band edge within "
+            f"lines within {self.edge_exclusion_resolutions:g} resolution widths of a band edge, and lines where "
+            "the window smooths a narrow feature of the target by more than 0.5 dB, within "
             f"{self.tolerance_low_db:+g}/{self.tolerance_high_db:+g} dB of what a Welch estimate of the target "
             "shows there (the target seen through the Hann window)"
         )
@@ -279,6 +281,16 @@ class AsdComparison:
         (near an edge).
     within : numpy.ndarray of bool
         Judged lines inside the tolerance band.
+    window_bias : numpy.ndarray of bool
+        In-band lines away from the edges where the Hann window visibly
+        smooths the target (a notch or a sharp step narrower than a few
+        lines: the smoothed target differs from the target by more than
+        0.5 dB); like the edge lines, they are judged against the smoothed
+        target, not in the line-by-line rule.
+    expected_g2_per_hz : numpy.ndarray
+        The target seen through the Hann window (what a Welch estimate of a
+        record with exactly the target spectrum shows), g^2/Hz; 0 outside
+        the band and its edge margin.
     max_deviation_db : float
         Signed deviation of largest magnitude over the judged lines, dB.
     max_deviation_frequency_hz : float
@@ -297,6 +309,8 @@ class AsdComparison:
     max_deviation_db: float
     max_deviation_frequency_hz: float
     fraction_within_tolerance: float
+    window_bias: np.ndarray = None
+    expected_g2_per_hz: np.ndarray = None
 
     @property
     def outside_ranges_hz(self) -> tuple:
@@ -366,7 +380,19 @@ def compare_asd(estimate: WelchEstimate, profile: AsdProfile, criteria: Criteria
     in_band = (f >= profile.frequency_min_hz) & (f <= profile.frequency_max_hz)
     margin = criteria.edge_exclusion_resolutions * estimate.resolution_hz
     near_edge = in_band & ((f < profile.frequency_min_hz + margin) | (f > profile.frequency_max_hz - margin))
-    judged = in_band & ~near_edge
+    expected = np.zeros(f.size)
+    around = (f >= profile.frequency_min_hz - margin) & (f <= profile.frequency_max_hz + margin)
+    expected[around] = _expected_welch_estimate(profile, estimate, f[around])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        bias_db = np.abs(10.0 * np.log10(expected / np.where(in_band, target, 1.0)))
+    # Lines near the outer edges follow the edge rule (edge_exclusion_resolutions), even when it is 0.
+    inner = (f > profile.frequency_min_hz + 3 * estimate.resolution_hz) & (
+        f < profile.frequency_max_hz - 3 * estimate.resolution_hz)
+    window_bias = in_band & ~near_edge & inner & (bias_db > 0.5)
+    judged = in_band & ~near_edge & ~window_bias
+    if not np.any(judged):  # every line is biased by the window: judge them all line by line instead
+        window_bias = np.zeros(f.size, dtype=bool)
+        judged = in_band & ~near_edge
     if not np.any(judged):
         raise InputError(
             f"no spectral line can be judged: resolution {estimate.resolution_hz:g} Hz is too coarse for the band "
@@ -390,6 +416,8 @@ def compare_asd(estimate: WelchEstimate, profile: AsdProfile, criteria: Criteria
         max_deviation_db=float(judged_dev[worst]),
         max_deviation_frequency_hz=float(f[judged][worst]),
         fraction_within_tolerance=float(np.count_nonzero(within) / np.count_nonzero(judged)),
+        window_bias=window_bias,
+        expected_g2_per_hz=expected,
     )
 
 
@@ -1084,18 +1112,22 @@ def _judge(criteria, profile, estimate, comparison, first, second, statistics, r
         limit_high_db=worst["limit_high_db"], bands=bands)
 
     # --- ASD, lines near a band edge, against the target as the Hann window shows it
-    edge = c.edge & (c.frequencies_hz >= 2 * estimate.resolution_hz)
+    window_bias = c.window_bias if c.window_bias is not None else np.zeros(c.frequencies_hz.size, dtype=bool)
+    edge = (c.edge | window_bias) & (c.frequencies_hz >= 2 * estimate.resolution_hz)
     if np.any(edge):
         f_edge = c.frequencies_hz[edge]
-        expected_edge = _expected_welch_estimate(profile, estimate, f_edge)
+        expected_edge = (c.expected_g2_per_hz[edge] if c.expected_g2_per_hz is not None
+                         else _expected_welch_estimate(profile, estimate, f_edge))
         with np.errstate(divide="ignore"):
             dev = 10.0 * np.log10(c.measured_g2_per_hz[edge] / expected_edge)
         j = int(np.argmax(np.abs(dev)))
         bad = (dev < criteria.tolerance_low_db) | (dev > criteria.tolerance_high_db)
         add("asd_edges", "asd", not np.any(bad),
-            f"{f_edge.size} band-edge lines against the target seen through the Hann window; worst "
+            f"{f_edge.size} band-edge and narrow-feature lines against the target seen through the Hann "
+            f"window; worst "
             f"{dev[j]:+.2f} dB at {f_edge[j]:g} Hz",
-            f"ASD at the band edges: {int(np.count_nonzero(bad))} of {f_edge.size} edge lines outside "
+            f"ASD at band edges and narrow features: {int(np.count_nonzero(bad))} of {f_edge.size} such lines "
+            "outside "
             f"{criteria.tolerance_low_db:+g}/{criteria.tolerance_high_db:+g} dB of what a Welch estimate of the "
             f"target shows there; worst {dev[j]:+.2f} dB at {f_edge[j]:g} Hz",
             measured_max_deviation_db=float(dev[j]), measured_frequency_hz=float(f_edge[j]),
