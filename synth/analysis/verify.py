@@ -818,12 +818,13 @@ def verify_record(
     checks = _judge(criteria, profile, estimate, comparison, first, second, statistics, rho, rho1,
                     short_windows, float(rate_hz), skip_start)
     failed, reasons = [], []
-    for check in checks:
-        if check["judged"] and not check["pass"] and check["group"] not in failed:
-            failed.append(check["group"])
-            others = [c["name"] for c in checks
-                      if c["group"] == check["group"] and c is not check and c["judged"] and not c["pass"]]
-            reasons.append(check["reason"] + (f" (also failed: {', '.join(others)})" if others else ""))
+    groups = list(dict.fromkeys(check["group"] for check in checks))  # in the order the criteria are listed
+    for group in groups:
+        bad = [c for c in checks if c["group"] == group and c["judged"] and not c["pass"]]
+        if bad:
+            failed.append(group)
+            others = [c["name"] for c in bad[1:]]
+            reasons.append(bad[0]["reason"] + (f" (also failed: {', '.join(others)})" if others else ""))
 
     return Verification(
         passed=not failed,
@@ -1211,8 +1212,8 @@ def _judge(criteria, profile, estimate, comparison, first, second, statistics, r
         add("crossing_rate", "asd", ok,
             f"{counted:.4g} /s counted, {expected:.4g} /s expected at {rate_hz:g} Hz ({err:+.1f} %)",
             f"crossing rate: {counted:.4g} mean-level up-crossings per s counted, {expected:.4g} /s expected for "
-            f"the target sampled at {rate_hz:g} Hz ({err:+.1f} %, tolerance +/-{limit:.3g} %): is the sample "
-            "rate right?",
+            f"the target sampled at {rate_hz:g} Hz ({err:+.1f} %, tolerance +/-{limit:.3g} %): a wrong sample "
+            "rate, a spectrum off the target or gaps in the record show here",
             judged=not criteria.relaxed,
             measured_rate_hz=counted, expected_rate_hz=expected, measured_error_percent=err, limit_percent=limit)
 
