@@ -331,3 +331,15 @@ def test_relaxed_rule_reports_the_crossing_rate_without_judging_it(base):
     entry = criterion(relaxed, "crossing_rate")
     assert entry["pass"] is False and entry["judged"] is False
     assert "not judged" in relaxed.to_dict()["rule"]["crossing_rate"]
+
+
+def test_new_criteria_settings_are_checked():
+    from vibsynth.errors import InputError
+
+    for kwargs in ({"mean_limit_percent": -1.0}, {"crossing_rate_tolerance_percent": float("nan")},
+                   {"false_alarm_probability": 0.0}, {"false_alarm_probability": 0.7}):
+        with pytest.raises(InputError):
+            Criteria(**kwargs)
+    rules = Criteria().rule_text()
+    assert {"mean", "stationarity", "crossing_rate", "asd_bands", "asd_edges", "gaussian"} <= rules.keys()
+    assert "gaussian" not in Criteria(kurtosis_target=5.0).rule_text()
