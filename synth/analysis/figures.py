@@ -20,7 +20,7 @@ from matplotlib.figure import Figure
 
 from vibsynth.errors import InputError
 from vibsynth.io.atomic import AtomicFile, commit_all
-from vibsynth.analysis.verify import Verification
+from vibsynth.analysis.verify import Verification, floor_percent
 
 PAPER = "#fbf8f1"
 INK = "#2b2b2b"
@@ -164,7 +164,7 @@ def asd_figure(result: Verification, title: str = "") -> Figure:
     if np.any(c.edge):
         ax.plot(c.frequencies_hz[c.edge], np.clip(c.measured_g2_per_hz[c.edge], floor * 1.25, None), ".",
                 color=MUTED, ms=5, label=f"within {criteria.edge_exclusion_resolutions:g} resolution widths of a "
-                                          "band edge: reported, not judged")
+                                          "band edge: judged against the window-smoothed target")
     ax.set_xlim(f_lo, f_hi)
     ax.set_xlabel("frequency (Hz)")
     ax.set_ylabel("ASD (g²/Hz)")
@@ -300,11 +300,11 @@ def summary_figure(result: Verification, title: str = "", lines: tuple = ()) -> 
         "Spectrum",
         f"  g RMS {d['grms_measured']:.4g} g measured, {d['grms_target']:.4g} g target ({d['grms_error_percent']:+.2f} %)",
         f"  worst line {d['asd']['max_deviation_db']:+.2f} dB at {d['asd']['max_deviation_frequency_hz']:g} Hz; "
-        f"{100 * d['asd']['fraction_within_tolerance']:.1f} % of {d['asd']['lines_judged']} judged lines in tolerance",
+        f"{floor_percent(d['asd']['fraction_within_tolerance'])} % of {d['asd']['lines_judged']} judged lines in tolerance",
         f"  Welch: Hann, 50 % overlap, {d['asd']['segments']} segments, {d['asd']['dof']:.0f} dof, "
         f"resolution {d['asd']['resolution_hz']:g} Hz",
         f"  {d['asd']['lines_near_edge_not_judged']} lines within {d['asd']['edge_exclusion_resolutions']:g} "
-        "resolution widths of a band edge: reported, not judged",
+        "resolution widths of a band edge: judged against the target seen through the Hann window",
     ]
     if d["asd"]["outside_ranges_hz"]:
         body.append("  outside tolerance at " + ", ".join(

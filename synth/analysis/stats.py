@@ -45,6 +45,7 @@ __all__ = [
     "LevelCrossingStatistics",
     "amplitude_statistics",
     "DEFAULT_LEVELS_SIGMA",
+    "WindowRmsAccumulator",
 ]
 
 #: Exceedance levels, in standard deviations, counted by default.
@@ -464,3 +465,93 @@ def amplitude_statistics(chunks, rate_hz: float, window_s: float | None = None,
         raise InputError(f"the second read of the record gave {crossings.count} samples, the first "
                          f"{moments.count}; the source must give the same record each time", location="chunks")
     return moments, crossings
+
+
+class WindowRmsAccumulator:
+    """RMS (about zero) of successive, non-overlapping windows of a record fed in chunks.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate, Hz.
+    window_samples : int
+        Samples per window (>= 1); a trailing partial window is left out.
+
+    Examples
+    --------
+    >>> acc = WindowRmsAccumulator(100.0, 2)
+    >>> acc.update([3.0, 4.0, 0.0]); acc.update([0.0, 1.0])
+    >>> [round(v, 3) for v in acc.result()]
+    [3.536, 0.0]
+
+    References
+    ----------
+    J. S. Bendat and A. G. Piersol, "Random Data: Analysis and Measurement
+    Procedures", 4th ed., Wiley (2010), section 12.4 (run and reverse
+    arrangement tests of stationarity on mean-square values of successive
+    short time intervals).
+    """
+
+    def __init__(self, rate_hz: float, window_samples: int):
+        self._rate_hz = check_rate_hz(rate_hz)
+        if isinstance(window_samples, bool) or not isinstance(window_samples, numbers.Integral) \
+                or int(window_samples) < 1:
+            raise InputError(f"window_samples must be a whole number >= 1, got {window_samples!r}",
+                             location="window_samples")
+        self._w = int(window_samples)
+        self._n = 0
+        self._partial_sq = 0.0
+        self._partial_n = 0
+        self._rms: list[float] = []
+
+    @property
+    def window_s(self) -> float:
+        """Window length, s."""
+        return self._w / self._rate_hz
+
+    def update(self, chunk) -> None:
+        """Add the next samples (record unit, any length).
+
+        Examples
+        --------
+        >>> acc = WindowRmsAccumulator(10.0, 1); acc.update([2.0]); acc.result()
+        (2.0,)
+
+        References
+        ----------
+        Bendat & Piersol (2010), section 12.4.
+        """
+        x = as_samples(chunk, self._n)
+        self._n += x.size
+        w, i = self._w, 0
+        if self._partial_n:
+            take = min(w - self._partial_n, x.size)
+            self._partial_sq += float(np.dot(x[:take], x[:take]))
+            self._partial_n += take
+            i = take
+            if self._partial_n < w:
+                return
+            self._rms.append(math.sqrt(self._partial_sq / w))
+            self._partial_sq, self._partial_n = 0.0, 0
+        full = (x.size - i) // w
+        if full:
+            block = x[i:i + full * w].reshape(full, w)
+            self._rms.extend(np.sqrt(np.einsum("ij,ij->i", block, block) / w).tolist())
+            i += full * w
+        rest = x[i:]
+        self._partial_sq = float(np.dot(rest, rest))
+        self._partial_n = rest.size
+
+    def result(self) -> tuple:
+        """RMS of each complete window, in time order (record unit).
+
+        Examples
+        --------
+        >>> WindowRmsAccumulator(10.0, 3).result()
+        ()
+
+        References
+        ----------
+        Bendat & Piersol (2010), section 12.4.
+        """
+        return tuple(self._rms)
