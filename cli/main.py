@@ -60,8 +60,10 @@ def _finite(param_type: click.ParamType) -> click.ParamType:
 def _register() -> None:
     """Add the commands in the order a user meets them (the main job first)."""
     from vibsynth.cli import generate_cmd, info_cmd, peaks_cmd, run_cmd, verify_cmd
+    from vibsynth.cli import equivalent_cmd, fit_cmd, response_cmd, severity_cmd
 
     for command in (run_cmd.run, info_cmd.info, generate_cmd.generate, verify_cmd.verify, peaks_cmd.peaks,
+                    response_cmd.response, severity_cmd.severity, equivalent_cmd.equivalent, fit_cmd.fit,
                     info_cmd.presets):
         cli.add_command(command)
     # Every number a user types must be finite: nan or inf reaching synth/ could only fail late or obscurely.

@@ -46,6 +46,8 @@ _LAZY = {
     "shaker_fit": "vibsynth.durability.shaker",
     "drive_motion_peaks": "vibsynth.durability.shaker",
     "open_drive_samples": "vibsynth.durability.drive_input",
+    "write_severity_figures": "vibsynth.durability.figures",
+    "write_equivalence_figure": "vibsynth.durability.figures",
 }
 
 __all__ = sorted(_LAZY)

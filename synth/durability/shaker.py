@@ -341,6 +341,6 @@ def shaker_fit(profile: AsdProfile, shaker: ShakerRating, payload_kg: float = 0.
             notes.append(f"the drive's largest acceleration ({peak:.3g} g, {peak / profile.grms:.2f} x RMS) is above "
                          f"the 3-sigma figure ({3 * profile.grms:.3g} g)")
     force = (shaker.moving_mass_kg + payload) * profile.grms * STANDARD_GRAVITY_M_S2
-    demands.append(Demand("force_rms", "(moving mass + payload) x g RMS x g0, rigid payload", force,
+    demands.append(Demand("force_rms", "(moving + payload mass) x g RMS x g0, rigid", force,
                           shaker.rated_force_rms_n, "N"))
     return FitResult(demands=tuple(demands), force_rms_n=force, payload_kg=payload, shaker=shaker, notes=tuple(notes))
