@@ -24,14 +24,7 @@ GRID = "#ddd5c4"
 GRID_MINOR = "#eee7d8"
 
 
-def _axes(title: str, subtitle: str, ylabel: str):
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
-    figure = Figure(figsize=(9.0, 5.2), dpi=110, facecolor=PAPER)
-    FigureCanvasAgg(figure)
-    figure.subplots_adjust(left=0.1, right=0.97, bottom=0.2, top=0.86)
-    ax = figure.add_subplot(1, 1, 1)
+def _style(ax) -> None:
     ax.set_facecolor(PAPER)
     ax.set_axisbelow(True)
     for spine in ("top", "right"):
@@ -40,17 +33,41 @@ def _axes(title: str, subtitle: str, ylabel: str):
         ax.spines[spine].set_color(MUTED)
     ax.tick_params(colors=INK, labelsize=8.5)
     ax.set_xscale("log")
-    ax.set_yscale("log")
     ax.grid(True, which="major", color=GRID, linewidth=0.7)
     ax.grid(True, which="minor", color=GRID_MINOR, linewidth=0.4)
     from matplotlib.ticker import FuncFormatter
 
     ax.xaxis.set_major_formatter(FuncFormatter(lambda value, _: f"{value:g}"))
-    ax.set_xlabel("natural frequency fn (Hz)", color=INK)
+
+
+def _axes(title: str, subtitle: str, ylabel: str, ratio_panel: bool = False):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    figure = Figure(figsize=(9.0, 6.2 if ratio_panel else 5.2), dpi=110, facecolor=PAPER)
+    FigureCanvasAgg(figure)
+    height = figure.get_size_inches()[1]
+    figure.subplots_adjust(left=0.1, right=0.97, bottom=(0.6 if ratio_panel else 1.05) / height,
+                           top=1 - 0.72 / height, hspace=0.12)
+    if ratio_panel:
+        grid = figure.add_gridspec(2, 1, height_ratios=(2.6, 1.0))
+        ax = figure.add_subplot(grid[0])
+        lower = figure.add_subplot(grid[1], sharex=ax)
+    else:
+        ax = figure.add_subplot(1, 1, 1)
+        lower = None
+    for each in (ax, lower):
+        if each is not None:
+            _style(each)
+    ax.set_yscale("log")
     ax.set_ylabel(ylabel, color=INK)
-    figure.text(0.1, 0.94, title, fontsize=12, color=INK, weight="bold")
-    figure.text(0.1, 0.9, subtitle, fontsize=8.5, color=MUTED)
-    return figure, ax
+    bottom = lower if lower is not None else ax
+    bottom.set_xlabel("natural frequency fn (Hz)", color=INK)
+    if lower is not None:
+        ax.tick_params(labelbottom=False)
+    figure.text(0.1, 1 - 0.32 / height, title, fontsize=12, color=INK, weight="bold")
+    figure.text(0.1, 1 - 0.52 / height, subtitle, fontsize=8.5, color=MUTED)
+    return (figure, ax, lower) if ratio_panel else (figure, ax)
 
 
 def _plain_y(ax) -> None:
@@ -107,15 +124,22 @@ def write_severity_figures(folder, profile_result, drive_result=None, *, drive_f
     folder = Path(folder)
     r = profile_result
     common = f"Q = {r.q:g}, b = {r.b:g}, duration {r.duration_s:g} s; damage per unit K^b/C (m^{r.b:g})"
-    figure, ax = _axes("Fatigue damage spectrum", common, f"damage (m^{r.b:g}, K = C = 1)")
+    figure, ax, lower = _axes("Fatigue damage spectrum", common, f"damage (m^{r.b:g}, K = C = 1)", ratio_panel=True)
     ax.plot(r.fn_hz, r.fds_narrowband, color=TARGET, linewidth=1.8, label=f"{label}: narrow band")
     ax.plot(r.fn_hz, r.fds_dirlik, color=BROADBAND, linewidth=1.4, linestyle="--", label=f"{label}: Dirlik")
+    lower.axhline(1.0, color=TARGET, linewidth=1.2)
+    lower.plot(r.fn_hz, r.fds_dirlik / r.fds_narrowband, color=BROADBAND, linewidth=1.4, linestyle="--")
     if drive_result is not None:
         values = drive_result.fds if drive_fds_scaled is None else np.asarray(drive_fds_scaled)
         note = "" if drive_fds_scaled is None else f", scaled from {drive_result.duration_s:g} s"
         ax.plot(drive_result.fn_hz, values, color=DRIVE, linewidth=0, marker="o", markersize=3.5,
                 label=f"drive: rainflow + Miner{note}")
-    _legend(ax)
+        reference = np.interp(np.log(drive_result.fn_hz), np.log(r.fn_hz), r.fds_narrowband)
+        lower.plot(drive_result.fn_hz, values / reference, color=DRIVE, linewidth=0.8, marker="o", markersize=3.5)
+    lower.set_ylabel("over narrow band", color=INK)
+    top = max(2.0, float(np.nanmax(lower.get_ylim())))
+    lower.set_ylim(0.0, min(top, 4.0))
+    ax.legend(loc="upper right", frameon=True, facecolor=PAPER, edgecolor=GRID, fontsize=8.5)
     written = [folder / "fds.png"]
     figure.savefig(written[-1], facecolor=PAPER)
     figure, ax = _axes("Extreme response spectrum", f"Q = {r.q:g}; pseudo-acceleration (2 pi fn)^2 z_max / g0",
