@@ -38,14 +38,5 @@ def echo_json(data: dict) -> None:
     click.echo(json.dumps(json_safe(data), indent=2))
 
 
-def read_drive_chunks(path: str, rate_hz, scale, steady_only: bool = True):
-    """Open a drive file: (drive, chunk iterator over the steady part or the whole file, samples)."""
-    from vibsynth.durability.drive_input import open_drive_samples
-
-    drive = open_drive_samples(path, rate_hz=rate_hz, scale=scale)
-    start, stop = drive.steady_range if steady_only else (0, drive.samples)
-    return drive, drive.iter_chunks(1 << 16, start, stop), stop - start
-
-
 DRIVE_RATE_HELP = "Sample rate of the drive in Hz, for a .csv/.npy without a sidecar."
 DRIVE_SCALE_HELP = "g value of full scale, for a .wav/.flac without a sidecar."

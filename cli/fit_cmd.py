@@ -30,21 +30,15 @@ def fit(profile, shaker_path, payload_kg, drive_path, rate, scale, as_json):
     force (moving mass + payload) x g RMS x g0 against the rated random force
     (rigid payload).
     """
-    import numpy as np
-
-    from vibsynth.cli.durability_common import read_drive_chunks
-    from vibsynth.durability.shaker import FIT_CAUTION, drive_motion_peaks, read_shaker, shaker_fit
+    from vibsynth.durability.report import fit_report
+    from vibsynth.durability.shaker import FIT_CAUTION
 
     loaded = load_profile(profile)
-    rig = read_shaker(shaker_path)
     collected: list = []
     with library_warnings(collected):
-        peaks = None
-        if drive_path is not None:
-            opened, chunks, _ = read_drive_chunks(drive_path, rate, scale, steady_only=False)
-            samples = np.concatenate(list(chunks))
-            peaks = drive_motion_peaks(samples, opened.rate_hz, 0.5 * loaded.frequency_min_hz)
-        result = shaker_fit(loaded, rig, payload_kg=payload_kg, drive_peaks=peaks)
+        result = fit_report(loaded, shaker_path, payload_kg=payload_kg, drive_path=drive_path, rate_hz=rate,
+                            scale=scale)
+    rig = result.shaker
     data = result.to_dict()
     data["profile"] = loaded.name
     data["warnings"] = collected

@@ -21,8 +21,8 @@ def _why_they_differ(profile, result) -> str:
                 f"(exact {result.rms_exact_g:.4g} g).")
     index = min(max(int(sum(profile.frequencies_hz <= fn)) - 1, 0), len(profile.exponents) - 1)
     slope = float(profile.slopes_db_per_octave[index])
-    reasons = [f"Miles' equation assumes a flat ASD across the resonance, the value at fn extending over all "
-               f"frequencies; the exact value integrates |T|^2 x ASD over the profile's band"]
+    reasons = ["Miles' equation assumes a flat ASD across the resonance, the value at fn extending over all "
+               "frequencies; the exact value integrates |T|^2 x ASD over the profile's band"]
     details = []
     white = math.sqrt(1.0 + 1.0 / (q * q))
     details.append(f"the transmissibility's 1 + 1/Q^2 term adds {100 * (white - 1):.2g} % for white noise")

@@ -92,7 +92,7 @@ def test_drive_fds_matches_the_narrowband_closed_form(long_drive):
 def test_dirlik_against_time_domain_damage_on_a_broadband_record():
     # The drive itself as a broadband "stress" (irregularity 0.76): Dirlik against rainflow + Miner.
     # Tolerance 15 %: the order of Dirlik's errors against simulated rainflow damage reported by Bishop &
-    # Sherratt (2000) and Benasciutti & Tovo (2006) (from memory); measured here 6-8 % (b = 3, 5).
+    # Sherratt (2000) and Benasciutti & Tovo (2006) (from memory); measured here +6 % (b = 3) and +9 % (b = 5).
     profile = AsdProfile([10.0, 200.0], [0.01, 0.01])
     rate = 4096.0
     x = vibsynth.generate_samples(profile, 300.0, rate, seed=2)
