@@ -96,3 +96,21 @@ def test_miles_is_zero_outside_the_band_and_errors_name_parameters():
     with pytest.raises(InputError, match="duration_s"):
         sdof_response(flat, 100.0, 10.0, duration_s=0.0)
     assert np.isfinite(sdof_response(flat, 100.0, 10.0).relative_displacement_rms_m)
+
+
+def test_miles_difference_on_white_noise():
+    # White noise over a very wide band: exact/Miles = sqrt(1 + 1/Q^2) (white-noise integral above), and the
+    # share of the response from beyond half an octave of fn, by scipy.integrate.quad of |T|^2
+    from vibsynth.durability.sdof import miles_difference
+
+    fn, q = 100.0, 10.0
+    wide = AsdProfile([fn * 1e-4, fn * 1e4], [0.01, 0.01])
+    difference = miles_difference(wide, fn, q)
+    assert difference.exact_to_miles == pytest.approx(math.sqrt(1 + 1 / q ** 2), rel=2e-4)
+    assert difference.slope_db_per_octave == 0.0 and difference.inside_band
+    t2 = lambda f: acceleration_transmissibility_squared(f, fn, q)  # noqa: E731
+    near = quad(t2, fn / math.sqrt(2), fn * math.sqrt(2), points=[fn], limit=500)[0]
+    total = math.pi / 2 * fn * (q + 1 / q)  # white-noise integral (Crandall & Mark 1963)
+    assert difference.off_resonance_share == pytest.approx(1 - near / total, rel=1e-3)
+    outside = miles_difference(wide, fn * 1e5, q)
+    assert not outside.inside_band and outside.exact_to_miles == math.inf

@@ -46,6 +46,7 @@ _LAZY = {
     "read_shaker": "vibsynth.durability.shaker",
     "shaker_fit": "vibsynth.durability.shaker",
     "drive_motion_peaks": "vibsynth.durability.shaker",
+    "miles_difference": "vibsynth.durability.sdof",
     "open_drive_samples": "vibsynth.durability.drive_input",
     "severity_report": "vibsynth.durability.report",
     "fit_report": "vibsynth.durability.report",

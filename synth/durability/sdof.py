@@ -50,6 +50,8 @@ __all__ = [
     "response_moments",
     "miles_rms_g",
     "sdof_response",
+    "MilesDifference",
+    "miles_difference",
 ]
 
 #: Amplification used when none is given: Q = 10 (damping ratio 5 %), common practice, no source.
@@ -393,4 +395,102 @@ def sdof_response(profile: AsdProfile, fn_hz: float, q: float = DEFAULT_Q,
         acceleration_moments=(a0, a2, a4), relative_displacement_rms_m=math.sqrt(d0),
         displacement_moments=(d0, d1, d2, d4), upcrossing_rate_hz=nu_a, displacement_upcrossing_rate_hz=nu_z,
         duration_s=duration, expected_peak_g=peak_g, expected_peak_sigma=peak_sigma,
+    )
+
+
+@dataclass(frozen=True)
+class MilesDifference:
+    """Why Miles' equation and the exact response RMS differ (see :func:`miles_difference`).
+
+    Attributes
+    ----------
+    exact_to_miles : float
+        ``rms_exact_g / rms_miles_g`` (inf when fn is outside the band, where Miles gives 0).
+    inside_band : bool
+        fn lies within the profile's band.
+    white_noise_factor : float
+        ``sqrt(1 + 1/Q^2)``: the exact/Miles ratio for white noise over all frequencies.
+    slope_db_per_octave : float or None
+        Slope of the ASD at fn, dB/octave (None outside the band).
+    octaves_to_band_edge : float or None
+        Distance from fn to the nearer band edge, octaves (None outside the band).
+    off_resonance_share : float
+        Share of the response mean-square from more than half an octave away from fn.
+    """
+
+    exact_to_miles: float
+    inside_band: bool
+    white_noise_factor: float
+    slope_db_per_octave: float | None
+    octaves_to_band_edge: float | None
+    off_resonance_share: float
+
+    def to_dict(self) -> dict:
+        """Plain data."""
+        return {
+            "exact_to_miles": self.exact_to_miles,
+            "inside_band": self.inside_band,
+            "white_noise_factor": self.white_noise_factor,
+            "slope_db_per_octave": self.slope_db_per_octave,
+            "octaves_to_band_edge": self.octaves_to_band_edge,
+            "off_resonance_share": self.off_resonance_share,
+        }
+
+
+def miles_difference(profile: AsdProfile, fn_hz: float, q: float = DEFAULT_Q) -> MilesDifference:
+    """The figures that explain how Miles' equation and the exact response differ for this profile.
+
+    Miles' equation takes the ASD at fn as flat over all frequencies; the exact
+    response differs by the transmissibility's ``1 + 1/Q^2`` term (white noise),
+    by the ASD's slope at fn, by the band edges, and by the response to the rest
+    of the band off resonance (quasi-static below, isolated above).
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        Base-acceleration ASD, g^2/Hz.
+    fn_hz : float
+        Natural frequency, Hz.
+    q : float
+        Amplification Q.
+
+    Returns
+    -------
+    MilesDifference
+
+    Examples
+    --------
+    >>> from vibsynth.profile.asd import AsdProfile
+    >>> d = miles_difference(AsdProfile([20.0, 2000.0], [0.01, 0.01]), 200.0, 10.0)
+    >>> round(d.white_noise_factor, 4), d.slope_db_per_octave, round(d.off_resonance_share, 3)
+    (1.005, 0.0, 0.084)
+
+    References
+    ----------
+    Miles (1954); Crandall & Mark (1963), white-noise response of the oscillator.
+    """
+    fn = _positive(fn_hz, "fn_hz", "Hz")
+    qq = _check_q(q)
+    total, = response_moments(profile, fn, qq, powers=(0,))
+    miles = miles_rms_g(profile, fn, qq)
+    inside = profile.frequency_min_hz <= fn <= profile.frequency_max_hz
+    slope = edge = None
+    if inside:
+        index = min(max(int(np.sum(profile.frequencies_hz <= fn)) - 1, 0), profile.exponents.size - 1)
+        slope = float(profile.slopes_db_per_octave[index])
+        edge = min(math.log2(fn / profile.frequency_min_hz), math.log2(profile.frequency_max_hz / fn))
+    lo = max(fn / math.sqrt(2.0), profile.frequency_min_hz)
+    hi = min(fn * math.sqrt(2.0), profile.frequency_max_hz)
+    near = 0.0
+    if hi > lo:
+        inner = profile.frequencies_hz[(profile.frequencies_hz > lo) & (profile.frequencies_hz < hi)]
+        f = np.concatenate([[lo], inner, [hi]])
+        near, = response_moments(AsdProfile(f, profile.evaluate(f)), fn, qq, powers=(0,))
+    return MilesDifference(
+        exact_to_miles=math.sqrt(total) / miles if miles > 0 else math.inf,
+        inside_band=inside,
+        white_noise_factor=math.sqrt(1.0 + 1.0 / (qq * qq)),
+        slope_db_per_octave=slope,
+        octaves_to_band_edge=edge,
+        off_resonance_share=max(0.0, 1.0 - near / total),
     )
