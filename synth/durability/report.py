@@ -140,8 +140,8 @@ def fit_report(profile, shaker_path, *, payload_kg: float = 0.0, drive_path=None
     payload_kg : float
         Test item mass, kg.
     drive_path : str or os.PathLike, optional
-        Drive file whose actual peaks (whole file, ramps included) join the demands;
-        read into memory whole.
+        Drive file whose actual peaks (whole file, ramps included) join the
+        demands; read chunk by chunk (bounded memory).
     rate_hz, scale : float, optional
         For drive files that cannot tell their rate or full scale.
 
@@ -172,6 +172,5 @@ def fit_report(profile, shaker_path, *, payload_kg: float = 0.0, drive_path=None
     peaks = None
     if drive_path is not None:
         opened = open_drive_samples(drive_path, rate_hz=rate_hz, scale=scale)
-        samples = np.concatenate(list(opened.iter_chunks(1 << 20)))
-        peaks = drive_motion_peaks(samples, opened.rate_hz, 0.5 * profile.frequency_min_hz)
+        peaks = drive_motion_peaks(opened.iter_chunks(1 << 16), opened.rate_hz, 0.5 * profile.frequency_min_hz)
     return shaker_fit(profile, rig, payload_kg=payload_kg, drive_peaks=peaks)
