@@ -128,3 +128,17 @@ def test_command_modules_do_not_load_numpy_at_import():
     result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert result.returncode == 0, result.stderr
     assert result.stdout.strip() == "[]"
+
+
+def test_severity_leaves_out_natural_frequencies_too_high_for_the_drive_rate(tmp_path, capsys):
+    profile = vibsynth.read_profile("bench-flat")
+    drive = tmp_path / "slow.npy"
+    np.save(drive, vibsynth.generate_samples(profile, 20.0, 5120.0, seed=2))
+    status = main(["severity", "bench-flat", "--duration", "60", "--drive", str(drive), "--rate", "5120",
+                   "--points", "6", "--json"])
+    captured = capsys.readouterr()
+    data = json.loads(captured.out)
+    assert status == 0
+    # 0.3 x 5120 Hz = 1536 Hz: the 2000 Hz point has no drive value (null), the others have one
+    assert data["fds_drive"][-1] is None and all(v is not None for v in data["fds_drive"][:-1])
+    assert "0.3 x its sample rate" in captured.err and data["warnings"]
