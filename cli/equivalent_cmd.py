@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import click
 
+from vibsynth.cli import types
+
 from vibsynth.cli.common import fail, load_profile
 from vibsynth.cli.durability_common import B_HELP, Q_HELP, echo_json, library_warnings
 
@@ -17,14 +19,14 @@ COMPRESSION_CAUTION = (
 
 
 @click.command()
-@click.option("--env", "environments", type=(str, click.FloatRange(min=0, min_open=True)), multiple=True,
+@click.option("--env", "environments", type=(str, types.FiniteFloatRange(min=0, min_open=True)), multiple=True,
               required=True, metavar="PROFILE SECONDS",
               help="A field environment and how long it lasts in s; repeat for each environment.")
-@click.option("--test-duration", required=True, type=click.FloatRange(min=0, min_open=True), metavar="S",
+@click.option("--test-duration", required=True, type=types.FiniteFloatRange(min=0, min_open=True), metavar="S",
               help="Duration of the test, s.")
-@click.option("--b", "b", type=click.FloatRange(min=1.0, max=30.0), default=8.0, show_default=True, metavar="B",
+@click.option("--b", "b", type=types.FiniteFloatRange(min=1.0, max=30.0), default=8.0, show_default=True, metavar="B",
               help=B_HELP)
-@click.option("--q", "q", type=click.FloatRange(min=0.5, min_open=True), default=10.0, show_default=True,
+@click.option("--q", "q", type=types.FiniteFloatRange(min=0.5, min_open=True), default=10.0, show_default=True,
               metavar="Q", help=Q_HELP)
 @click.option("--points", type=click.IntRange(min=2, max=200), default=8, show_default=True, metavar="N",
               help="Breakpoints of the fitted test profile.")

@@ -4,21 +4,23 @@ from __future__ import annotations
 
 import click
 
+from vibsynth.cli import types
+
 from vibsynth.cli.common import load_profile
 from vibsynth.cli.durability_common import DRIVE_RATE_HELP, DRIVE_SCALE_HELP, echo_json, library_warnings
 
 
 @click.command()
-@click.argument("profile")
+@click.argument("profile", type=types.ProfileSpec())
 @click.option("--shaker", "shaker_path", required=True, type=click.Path(dir_okay=False), metavar="RIG.toml",
               help="The rig's ratings: rated_force_rms_n, stroke_pk_pk_mm, velocity_peak_m_s, acceleration_peak_g, "
                    "moving_mass_kg (armature plus fixture).")
-@click.option("--payload-kg", type=click.FloatRange(min=0), default=0.0, show_default=True, metavar="M",
+@click.option("--payload-kg", type=types.FiniteFloatRange(min=0), default=0.0, show_default=True, metavar="M",
               help="Mass of the test item, kg.")
 @click.option("--drive", "drive_path", type=click.Path(dir_okay=False), default=None, metavar="FILE",
               help="Also judge this drive file by its actual peaks (stroke after double integration).")
-@click.option("--rate", type=click.FloatRange(min=0, min_open=True), default=None, metavar="HZ", help=DRIVE_RATE_HELP)
-@click.option("--scale", type=click.FloatRange(min=0, min_open=True), default=None, metavar="G", help=DRIVE_SCALE_HELP)
+@click.option("--rate", type=types.FiniteFloatRange(min=0, min_open=True), default=None, metavar="HZ", help=DRIVE_RATE_HELP)
+@click.option("--scale", type=types.FiniteFloatRange(min=0, min_open=True), default=None, metavar="G", help=DRIVE_SCALE_HELP)
 @click.option("--json", "as_json", is_flag=True, help="Print the result as JSON.")
 def fit(profile, shaker_path, payload_kg, drive_path, rate, scale, as_json):
     """Does PROFILE (and its drive) fit the shaker? Exit 0 when it fits, 1 when it does not.

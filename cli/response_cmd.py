@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import click
 
+from vibsynth.cli import types
+
 from vibsynth.cli.common import load_profile
 from vibsynth.cli.durability_common import Q_HELP, echo_json, library_warnings
 
@@ -32,12 +34,12 @@ def _why_they_differ(profile, result, difference) -> str:
 
 
 @click.command()
-@click.argument("profile")
-@click.option("--fn", "fn_hz", required=True, type=click.FloatRange(min=0, min_open=True), metavar="HZ",
+@click.argument("profile", type=types.ProfileSpec())
+@click.option("--fn", "fn_hz", required=True, type=types.FiniteFloatRange(min=0, min_open=True), metavar="HZ",
               help="Natural frequency of the oscillator, Hz.")
-@click.option("--q", "q", type=click.FloatRange(min=0.5, min_open=True), default=10.0, show_default=True,
+@click.option("--q", "q", type=types.FiniteFloatRange(min=0.5, min_open=True), default=10.0, show_default=True,
               metavar="Q", help=Q_HELP)
-@click.option("--duration", type=click.FloatRange(min=0, min_open=True), default=None, metavar="S",
+@click.option("--duration", type=types.FiniteFloatRange(min=0, min_open=True), default=None, metavar="S",
               help="Duration in s for the expected largest response peak (Davenport).")
 @click.option("--json", "as_json", is_flag=True, help="Print the result as JSON.")
 def response(profile, fn_hz, q, duration, as_json):

@@ -4,26 +4,28 @@ from __future__ import annotations
 
 import click
 
+from vibsynth.cli import types
+
 from vibsynth.cli.common import fail, load_profile
 from vibsynth.cli.durability_common import (B_HELP, DRIVE_RATE_HELP, DRIVE_SCALE_HELP, Q_HELP, echo_json,
                                             library_warnings)
 
 
 @click.command()
-@click.argument("profile")
-@click.option("--duration", required=True, type=click.FloatRange(min=0, min_open=True), metavar="S",
+@click.argument("profile", type=types.ProfileSpec())
+@click.option("--duration", required=True, type=types.FiniteFloatRange(min=0, min_open=True), metavar="S",
               help="Exposure the specification stands for, s.")
 @click.option("--drive", "drive_path", type=click.Path(dir_okay=False), default=None, metavar="FILE",
               help="Also compute the FDS/ERS of this drive file (SDOF filter, rainflow, Miner).")
-@click.option("--rate", type=click.FloatRange(min=0, min_open=True), default=None, metavar="HZ", help=DRIVE_RATE_HELP)
-@click.option("--scale", type=click.FloatRange(min=0, min_open=True), default=None, metavar="G", help=DRIVE_SCALE_HELP)
-@click.option("--b", "b", type=click.FloatRange(min=1.0, max=30.0), default=8.0, show_default=True, metavar="B",
+@click.option("--rate", type=types.FiniteFloatRange(min=0, min_open=True), default=None, metavar="HZ", help=DRIVE_RATE_HELP)
+@click.option("--scale", type=types.FiniteFloatRange(min=0, min_open=True), default=None, metavar="G", help=DRIVE_SCALE_HELP)
+@click.option("--b", "b", type=types.FiniteFloatRange(min=1.0, max=30.0), default=8.0, show_default=True, metavar="B",
               help=B_HELP)
-@click.option("--q", "q", type=click.FloatRange(min=0.5, min_open=True), default=10.0, show_default=True,
+@click.option("--q", "q", type=types.FiniteFloatRange(min=0.5, min_open=True), default=10.0, show_default=True,
               metavar="Q", help=Q_HELP)
-@click.option("--fn-min", type=click.FloatRange(min=0, min_open=True), default=None, metavar="HZ",
+@click.option("--fn-min", type=types.FiniteFloatRange(min=0, min_open=True), default=None, metavar="HZ",
               help="Lowest natural frequency (default: the profile's lowest frequency).")
-@click.option("--fn-max", type=click.FloatRange(min=0, min_open=True), default=None, metavar="HZ",
+@click.option("--fn-max", type=types.FiniteFloatRange(min=0, min_open=True), default=None, metavar="HZ",
               help="Highest natural frequency (default: the profile's highest frequency).")
 @click.option("--points", type=click.IntRange(min=2, max=2000), default=40, show_default=True, metavar="N",
               help="Natural frequencies in the grid (log-spaced).")

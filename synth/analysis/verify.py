@@ -984,7 +984,7 @@ def _expected_welch_estimate(profile: AsdProfile, estimate: WelchEstimate, frequ
     window = scipy.signal.get_window("hann", n)
     power = np.abs(np.fft.fft(window, pad * n)) ** 2
     idx = np.arange(-6 * pad, 6 * pad + 1)
-    kernel = power[idx]
+    kernel = power[idx % power.size]  # periodic: short segments wrap around
     kernel = kernel / kernel.sum()
     offsets = idx * (estimate.rate_hz / (pad * n))
     out = np.empty(frequencies_hz.size)
