@@ -153,9 +153,8 @@ class MomentAccumulator:
         self._m4 = 0.0
         self._min = math.inf
         self._max = -math.inf
-        self._partial_sq = 0.0
-        self._partial_n = 0
-        self._window_rms: list[float] = []
+        # RMS over windows: the one windowed accumulator of this module
+        self._windows = WindowRmsAccumulator(self._rate_hz, self._window_samples) if self._window_samples else None
 
     def _merge(self, n_b: int, mean_b: float, m2_b: float, m3_b: float, m4_b: float) -> None:
         n_a = self._n
@@ -174,29 +173,6 @@ class MomentAccumulator:
                     + 6.0 * d_n * d_n * (n_a * n_a * m2_b + n_b * n_b * m2_a)
                     + 4.0 * d_n * (n_a * m3_b - n_b * m3_a))
         self._n = n
-
-    def _windows(self, x: np.ndarray) -> None:
-        w = self._window_samples
-        if not w:
-            return
-        i = 0
-        if self._partial_n:
-            take = min(w - self._partial_n, x.size)
-            self._partial_sq += float(np.dot(x[:take], x[:take]))
-            self._partial_n += take
-            i = take
-            if self._partial_n < w:
-                return
-            self._window_rms.append(math.sqrt(self._partial_sq / w))
-            self._partial_sq, self._partial_n = 0.0, 0
-        full = (x.size - i) // w
-        if full:
-            block = x[i:i + full * w].reshape(full, w)
-            self._window_rms.extend(np.sqrt(np.einsum("ij,ij->i", block, block) / w).tolist())
-            i += full * w
-        rest = x[i:]
-        self._partial_sq = float(np.dot(rest, rest))
-        self._partial_n = rest.size
 
     def update(self, chunk) -> None:
         """Add the next samples of the record.
@@ -224,7 +200,8 @@ class MomentAccumulator:
         self._merge(n_b, mean_b, m2_b, m3_b, m4_b)
         self._min = min(self._min, float(np.min(x)))
         self._max = max(self._max, float(np.max(x)))
-        self._windows(x)
+        if self._windows is not None:
+            self._windows.update(x)
 
     def result(self) -> MomentStatistics:
         """Statistics of everything received so far.
@@ -271,7 +248,7 @@ class MomentAccumulator:
             crest_factor=crest,
             window_s=self._window_s,
             window_samples=self._window_samples,
-            window_rms=tuple(self._window_rms),
+            window_rms=self._windows.result() if self._windows is not None else (),
         )
 
 
