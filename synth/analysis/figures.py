@@ -226,8 +226,10 @@ def _judged(result: Verification) -> list:
     return [c for c in result.checks if c.get("judged", True)]
 
 
-def verdict_sentence(result: Verification) -> str:
+def verdict_sentence(result: Verification, most: int | None = None) -> str:
     """The verdict as a sentence: ``meets the target on 9 of 9 criteria`` or what it does not meet.
+
+    ``most`` limits the failed criteria named (the rest counted).
 
     Examples
     --------
@@ -245,8 +247,9 @@ def verdict_sentence(result: Verification) -> str:
     if result.passed:
         return f"meets the target on {met} of {len(judged)} criteria"
     missed = [criterion_words(c["name"]) for c in judged if not c["pass"]]
+    named = missed if most is None or len(missed) <= most else missed[:most] + [f"{len(missed) - most} more"]
     return (f"does not meet the target: {len(missed)} of {len(judged)} criteria not met ("
-            + "; ".join(missed) + ")")
+            + "; ".join(named) + ")")
 
 
 def _level(facts) -> str:
@@ -256,7 +259,9 @@ def _level(facts) -> str:
 def _title(result: Verification, facts, title: str) -> str:
     """``PROFILE at LEVEL - FILE``: the profile name and the level in every title."""
     name = facts.drive_name if facts is not None and facts.drive_name else title
-    head = f"{result.profile.name} at {_level(facts)}"
+    level = _level(facts)
+    joiner = " at " if level[:1] in "+-0123456789" else ", "  # "at -6 dB", ", rescaled to 2 g RMS"
+    head = f"{result.profile.name}{joiner}{level}"
     return head + (f"  ·  {name}" if name else "")
 
 
@@ -377,7 +382,10 @@ def _style(ax):
 
 
 def _verdict(result: Verification) -> str:
-    return ("PASS: " if result.passed else "FAIL: ") + verdict_sentence(result)
+    text = ("PASS: " if result.passed else "FAIL: ") + verdict_sentence(result)
+    if len(text) > 105:
+        text = ("PASS: " if result.passed else "FAIL: ") + verdict_sentence(result, most=1)
+    return text
 
 
 def _headings(figure: Figure, box: tuple, ax, result: Verification, facts, title: str, detail: str) -> None:
@@ -398,6 +406,8 @@ def _legend_below(figure: Figure, box: tuple, ax, ncol: int) -> None:
     width, height = figure.get_size_inches()
     x0, y0, w, h = box
     handles, labels = ax.get_legend_handles_labels()
+    if w < 8.0:  # a page of the PDF is narrower than a PNG: fewer columns
+        ncol = min(ncol, 2)
     if handles:
         figure.legend(handles, labels, loc="lower center", bbox_to_anchor=((x0 + w / 2) / width, y0 / height),
                       ncol=ncol, fontsize=8, frameon=False)
@@ -406,7 +416,7 @@ def _legend_below(figure: Figure, box: tuple, ax, ncol: int) -> None:
 # ====================================================================== the four figures
 def _draw_asd(figure: Figure, box: tuple, result: Verification, facts, title: str):
     c, e, criteria = result.comparison, result.estimate, result.criteria
-    ax = _axes(figure, box, bottom=1.25)
+    ax = _axes(figure, box, bottom=1.25 if box[2] >= 8.0 else 1.6)
     profile = result.profile
     f_lo = profile.frequency_min_hz / 1.6
     f_hi = min(profile.frequency_max_hz * 1.6, e.rate_hz / 2)
@@ -764,7 +774,7 @@ def summary_figure(result: Verification, title: str = "", lines: tuple = (), fac
     # ---- verdict
     colour = MEASURED if result.passed else OUTSIDE
     sentence = ("PASS: the drive " if result.passed else "FAIL: the drive ") + verdict_sentence(result)
-    verdict_lines = _wrap(sentence, 86)
+    verdict_lines = _wrap(sentence, 70)
     height = 0.16 + 0.21 * len(verdict_lines)
     page.box(0, page.y, inner, height, colour, lw=1.6)
     page.y -= 0.08
@@ -833,19 +843,19 @@ def summary_figure(result: Verification, title: str = "", lines: tuple = (), fac
     # ---- criteria
     page.text(0, "Criteria", 9.5, weight="bold", dy=0.2)
     page.text(0, "criterion", 7.5, color=MUTED)
-    page.text(2.35, "result", 7.5, color=MUTED)
-    page.text(3.05, "measured against the limit", 7.5, color=MUTED, dy=0.16)
+    page.text(2.5, "result", 7.5, color=MUTED)
+    page.text(3.2, "measured against the limit", 7.5, color=MUTED, dy=0.16)
     page.rule(RULE, 0.5)
     page.y -= 0.04
     for check in result.checks:
         judged = check.get("judged", True)
         verdict = "met" if check["pass"] else ("NOT MET" if judged else "reported only")
         tint = MEASURED if check["pass"] else (OUTSIDE if judged else MUTED)
-        wrapped = _wrap(check["summary"], 80)
+        wrapped = _wrap(check["summary"], 76)
         page.text(0, criterion_words(check["name"]), 8)
-        page.text(2.35, verdict, 8, color=tint, weight="bold")
+        page.text(2.5, verdict, 8, color=tint, weight="bold")
         for line in wrapped:
-            page.text(3.05, line, 7.3, dy=0.14)
+            page.text(3.2, line, 7.3, dy=0.14)
         page.y -= 0.02
     page.rule(RULE, 0.5)
     page.y -= 0.08
