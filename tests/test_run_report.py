@@ -306,3 +306,47 @@ def test_hermite_model_density_against_samples_and_the_normal():
     assert integral == pytest.approx(1.0, abs=1e-6)
     excess = (np.trapezoid(z**4 * p, z) if hasattr(np, "trapezoid") else np.trapz(z**4 * p, z))
     assert excess < 3.0  # hardening: lighter tails than the normal (kurtosis 3, Pearson)
+
+
+def test_target_above_estimate_breakpoints_marked_band_visible_and_out_of_band_dimmed(verified, tmp_path):
+    import numpy as np
+    from matplotlib import colors
+    from matplotlib.image import imread
+
+    from vibsynth.analysis import figures
+
+    result = verified[0]
+    figure = figures.asd_figure(result)
+    ax = figure.axes[0]
+    lines = {line.get_label(): line for line in ax.get_lines()}
+    assert lines["target"].get_zorder() > lines["estimate (Welch)"].get_zorder()
+    assert lines["target breakpoints"].get_zorder() > lines["estimate (Welch)"].get_zorder()
+    np.testing.assert_array_equal(lines["target breakpoints"].get_xdata(), result.profile.frequencies_hz)
+    dimmed = [line for line in ax.get_lines() if line.get_label() == "_dimmed"]
+    assert dimmed and all(colors.to_hex(line.get_color()) == figures.DIMMED for line in dimmed)
+    band = _invented_profile()
+    for line in dimmed:
+        f = np.asarray(line.get_xdata())
+        assert np.all((f < band.frequency_min_hz) | (f > band.frequency_max_hz))
+    # the confidence band shows as its own colour on the PNG (not hidden under the estimate)
+    path = tmp_path / "asd.png"
+    figure.savefig(path, facecolor=figures.PAPER)
+    pixels = imread(path)[..., :3]
+    near = np.all(np.abs(pixels - np.array(colors.to_rgb(figures.CONFIDENCE))) < 0.08, axis=-1)
+    assert near.mean() > 2e-3
+
+
+def test_amplitude_plot_is_sized_to_the_data_and_shows_the_clip_lines(verified):
+    from vibsynth.analysis import figures
+
+    result = verified[0]
+    ax = figures.amplitude_figure(result).axes[0]
+    low, high = ax.get_xlim()
+    peak = result.statistics["largest_peak_sigma"]
+    assert peak <= high <= peak + 1.5 and low == -high  # not the +/-12 sigma histogram range
+    model = {"family": "clip", "clip_level_sigma": 2.47, "clipped_rms_sigma": 0.988, "crest_factor": 2.5,
+             "peak_limit_g": 2.5 * result.grms_target}
+    ax = figures.amplitude_figure(result, facts=figures.ReportFacts(model=model)).axes[0]
+    labels = ax.get_legend_handles_labels()[1]
+    assert any(label.startswith("clip lines ±2.5") for label in labels)
+    assert any("requested model" in label for label in labels)
