@@ -38,6 +38,8 @@ OPTION_NAMES = {
     "loop": "--loop",
     "memory_budget_bytes": "--memory-budget",
     "memory_budget_mb": "--memory-budget",
+    "overwrite": "--overwrite",
+    "paper": "--paper",
     "min_fraction_within": "--min-fraction",
     "quantities": "--quantities",
     "ramp": "--ramp",

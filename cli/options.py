@@ -125,6 +125,10 @@ dof = SharedOption(
     "--dof", type=types.FiniteFloatRange(min=2), default=None, metavar="N",
     help="Statistical degrees of freedom to aim at (default 120; a warning says when the record is too short).")
 
+#: Paper size of report.pdf (run, verify --report).
+paper = SharedOption("--paper", type=click.Choice(["a4", "letter"], case_sensitive=False), default="a4",
+                     show_default=True, help="Paper size of report.pdf: A4 (595 x 842 pt) or US Letter (612 x 792 pt).")
+
 VERIFY_OPTIONS = (tolerance, grms_tolerance, min_fraction, welch_resolution, dof)
 
 # ------------------------------------------------------------------ peaks

@@ -47,20 +47,25 @@ REPORT_FILES = ("profile.toml", "report.json", "report.pdf", "asd.png", "amplitu
                + tuple(o for o in options.DRIVE_OPTIONS if o not in (options.duration, options.rate)))
 @click.option("--format", "file_format", type=click.Choice(["flac", "wav", "csv", "npy"]), default="flac",
               show_default=True, help="Drive file format.")
+@click.option("--overwrite", is_flag=True,
+              help="Replace a previous run in the folder: its drive, sidecar, report and figures are removed first. "
+                   "Without it a folder holding any file is refused; files a run does not write are never removed.")
 @options.apply(*options.VERIFY_OPTIONS)
+@options.paper
 @options.inch
 @options.json_output
 @options.quiet
 def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms,
-        level_db, kurtosis, skewness, clip, tolerance, grms_tolerance, min_fraction, resolution, dof, inch, as_json,
-        command_quiet):
+        level_db, kurtosis, skewness, clip, overwrite, tolerance, grms_tolerance, min_fraction, resolution, dof, paper,
+        inch, as_json, command_quiet):
     """The main job: generate a drive for PROFILE, verify it, write everything into one folder.
 
     PROFILE defaults to the bundled preset `parcel-conveyor` (invented demo
     data). Writes drive.FORMAT and its sidecar, the target profile
     (profile.toml), report.json (generation and verification), the figures
     (asd.png, amplitude.png, excerpt.png, rms.png) and report.pdf into the
-    folder -o DIR. --json prints the report (with the folder, the files, the
+    folder -o DIR, which must be new or empty (or hold a previous run and
+    --overwrite be given). --json prints the report (with the folder, the files, the
     warnings and the caution) instead of the text summary. Exit 0 when the
     drive passes verification, 1 when it does not, 2 for bad input.
 
@@ -84,6 +89,7 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
     folder = Path(out_dir) if out_dir else drive_job.default_run_folder(target.name)
     if folder.exists() and not folder.is_dir():
         raise click.UsageError(f"{folder} exists and is not a folder; give another -o/--output")
+    drive_job.check_run_folder(folder, overwrite)  # before any work: one line naming what is there
     request = drive_job.RunRequest(
         folder=str(folder),
         file_format=file_format,
@@ -107,6 +113,8 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
         min_fraction_within=min_fraction,
         resolution_hz=resolution,
         dof=dof,
+        overwrite=overwrite,
+        paper=paper.lower(),
     )
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", VibsynthWarning)  # the result carries them; printed once each

@@ -103,9 +103,10 @@ _dof_option = options.dof
                               "statistics, ...).")
 @click.option("-o", "--report", "report_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
               help="Write figures (PNG), a multi-page PDF and verify.json into the folder DIR.")
+@options.paper
 @options.quiet.but(help="No text report (only the exit status; warnings and errors still show; --json still prints).")
 def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction, resolution, dof, rate, scale, as_json,
-           report_dir, command_quiet):
+           report_dir, paper, command_quiet):
     """Judge a drive file against its target ASD: exit 0 pass, 1 fail, 2 bad input.
 
     Re-estimates the ASD by Welch's method (Hann, 50 % overlap) from the file
@@ -132,7 +133,11 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     data = jobs.verification_data(result, drive, str(file))
     compensation = data.get("compensation")
     if report_dir:
-        data["report"] = jobs.write_verify_report(result, drive, report_dir, str(file), data)
+        level = None
+        if profile_spec:  # a target given here: its level is the one asked here
+            level = f"{level_db:+g} dB" if level_db is not None else "0 dB (as written)"
+        data["report"] = jobs.write_verify_report(result, drive, report_dir, str(file), data, paper=paper.lower(),
+                                                  level=level)
     if as_json:
         click.echo(json.dumps(data, indent=2, allow_nan=False))
     elif not is_quiet(command_quiet):

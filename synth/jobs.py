@@ -535,8 +535,12 @@ def verification_data(result, drive, file_label: str) -> dict:
     return data
 
 
-def write_verify_report(result, drive, folder, file_label: str, data: dict | None = None) -> dict:
+def write_verify_report(result, drive, folder, file_label: str, data: dict | None = None, paper: str = "a4",
+                        level: str | None = None) -> dict:
     """Write the figures, report.pdf and verify.json into ``folder`` (created), each atomically.
+
+    ``paper`` is the PDF's paper size (``a4`` or ``letter``); ``level`` the
+    level applied to the target in words (default: from the sidecar).
 
     Returns
     -------
@@ -557,10 +561,99 @@ def write_verify_report(result, drive, folder, file_label: str, data: dict | Non
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     data = verification_data(result, drive, file_label) if data is None else data
-    paths = write_report_figures(result, folder, title=Path(file_label).name)
+    facts = report_facts(drive, level=level, label=Path(file_label).name)
+    paths = write_report_figures(result, folder, title=Path(file_label).name, facts=facts, paper=paper)
     write_json_atomic(folder / "verify.json", data)
     paths["json"] = str(folder / "verify.json")
     return paths
+
+
+def level_text(options: dict | None) -> str:
+    """The level applied to the profile as written, in words, from a sidecar's options.
+
+    Examples
+    --------
+    >>> level_text({"rescale_level_db": -6.0})
+    '-6 dB'
+    >>> level_text({})
+    '0 dB (as written)'
+
+    References
+    ----------
+    Decibels of a power quantity: 10 log10 of the ASD ratio.
+    """
+    options = options or {}
+    if options.get("rescale_level_db") is not None:
+        return f"{float(options['rescale_level_db']):+g} dB".replace("+0 dB", "0 dB")
+    if options.get("rescale_grms_g") is not None:
+        return f"rescaled to {float(options['rescale_grms_g']):g} g RMS"
+    return "0 dB (as written)"
+
+
+def report_facts(drive, level: str | None = None, label: str | None = None, created_utc: str | None = None):
+    """What report.pdf says about a drive file besides the verification (:class:`~vibsynth.analysis.figures.ReportFacts`).
+
+    Parameters
+    ----------
+    drive : vibsynth.io.drivefile.DriveFile
+        The opened drive (its sidecar read when there is one).
+    level : str, optional
+        The level applied, in words (default: from the sidecar's options).
+    label : str, optional
+        Name to print for the drive (default: its file name).
+    created_utc : str, optional
+        ISO 8601 time of the report (default: now).
+
+    Returns
+    -------
+    ReportFacts
+        With the SHA-256 digests of the drive file and its sidecar.
+
+    Examples
+    --------
+    >>> report_facts.__name__
+    'report_facts'
+
+    References
+    ----------
+    FIPS 180-4 (SHA-256); ISO 8601.
+    """
+    from vibsynth.analysis.figures import ReportFacts
+
+    side = drive.sidecar
+    side_path = drivefile.sidecar_path(drive.path)
+    options = (side.options or {}) if side is not None else {}
+    if drive.format in ("wav", "flac"):
+        full_scale = f"sample 1.0 = {drive.scale:.6g} g"
+        if side is not None and side.full_scale_from == "peak":
+            headroom = side.full_scale_headroom_fraction or 0.0
+            full_scale += f" (the record's peak {side.peak_g:.4g} g plus {100 * headroom:g} % headroom)"
+        elif side is not None and side.full_scale_from == "given":
+            full_scale += " (given)"
+    else:
+        full_scale = "values in g (no full scale)"
+    ramps = ""
+    if drive.ramp_in_s or drive.ramp_out_s:
+        ramps = f"{drive.ramp_in_s:g} s fade-in, {drive.ramp_out_s:g} s fade-out (left out of the verification)"
+    return ReportFacts(
+        drive_name=label or drive.path.name,
+        drive_format=f"{drive.format.upper()}, {drive.subtype}",
+        full_scale=full_scale,
+        rate_hz=float(drive.rate_hz),
+        duration_s=float(drive.duration_s),
+        samples=int(drive.samples),
+        seed=side.seed if side is not None else None,
+        amplitude=str(options.get("amplitude") or ""),
+        level=level or (level_text(options) if side is not None else ""),
+        profile_source=str(((side.profile or {}).get("source") if side is not None else "") or ""),
+        ramps=ramps,
+        drive_sha256=_sha256(drive.path),
+        sidecar_name=side_path.name if side_path.exists() else "",
+        sidecar_sha256=_sha256(side_path) if side_path.exists() else "",
+        tool_version=__version__,
+        created_utc=created_utc or _now_utc(),
+        model=dict(side.transform) if side is not None and isinstance(side.transform, dict) else None,
+    )
 
 
 def _json_safe(value, empty_text=""):
@@ -615,6 +708,11 @@ class RunRequest:
         Welch line spacing, Hz.
     dof : float or None
         Degrees of freedom to aim at.
+    overwrite : bool
+        Replace a previous run in the folder (see :func:`check_run_folder`);
+        without it a folder holding any file refuses the run.
+    paper : {"a4", "letter"}
+        Paper size of report.pdf.
     """
 
     folder: str
@@ -625,6 +723,109 @@ class RunRequest:
     min_fraction_within: float = 1.0
     resolution_hz: float | None = None
     dof: float | None = None
+    overwrite: bool = False
+    paper: str = "a4"
+
+
+#: Sample formats a run's drive may have (``drive.FORMAT``).
+RUN_DRIVE_FORMATS = ("flac", "wav", "csv", "npy")
+
+#: Files a run writes besides the drive and its sidecar.
+RUN_REPORT_FILES = ("profile.toml", "report.json", "report.pdf") + tuple(f"{name}.png" for name in FIGURE_NAMES)
+
+_PARTIAL_NAME = re.compile(r"^\.(?P<name>.+?)\.\d+(?:\.\d+)?\.partial$")
+
+
+def run_file_names() -> frozenset:
+    """Names of every file a run may write into its folder (any drive format, its sidecar, report, figures).
+
+    Examples
+    --------
+    >>> sorted(run_file_names())[:3]
+    ['amplitude.png', 'asd.png', 'drive.csv']
+
+    References
+    ----------
+    The folder layout of :func:`complete_run`.
+    """
+    drives = [f"drive.{fmt}" for fmt in RUN_DRIVE_FORMATS]
+    return frozenset(drives + [drivefile.sidecar_path(Path(name)).name for name in drives] + list(RUN_REPORT_FILES))
+
+
+def _is_run_file(name: str) -> bool:
+    """A file a run writes, or the temporary file of one (``.NAME.PID.partial``)."""
+    known = run_file_names()
+    match = _PARTIAL_NAME.match(name)
+    return name in known or (match is not None and match.group("name") in known)
+
+
+def _listing(names, most: int = 4) -> str:
+    names = sorted(names, key=lambda name: (not name.startswith("drive."), name))  # the drive first
+    shown = ", ".join(names[:most])
+    return shown + (f" and {len(names) - most} more" if len(names) > most else "")
+
+
+def check_run_folder(folder, overwrite: bool = False) -> tuple:
+    """Check that a run may write into ``folder``; return the previous run's files there (to remove).
+
+    A missing or empty folder is fine.  A folder holding files refuses the run
+    unless ``overwrite`` is given; even then, files a run does not write
+    (anything but ``drive.*``, sidecars, ``report.*``, figures and
+    ``profile.toml``) are never removed and refuse the run.
+
+    Parameters
+    ----------
+    folder : str or os.PathLike
+        The run folder.
+    overwrite : bool
+        Replace a previous run in the folder.
+
+    Returns
+    -------
+    tuple of pathlib.Path
+        The files of a previous run (empty when the folder is new or empty).
+
+    Raises
+    ------
+    InputError
+        ``folder`` is a file, holds sub-folders or unknown files, or holds a
+        previous run and ``overwrite`` is not given (one line naming what is there).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> check_run_folder(folder)
+    ()
+    >>> _ = (folder / "notes.txt").write_text("mine")
+    >>> check_run_folder(folder, overwrite=True)
+    Traceback (most recent call last):
+    ...
+    vibsynth.errors.InputError: ...holds files a run does not write (notes.txt)...
+
+    References
+    ----------
+    The folder layout of :func:`complete_run`.
+    """
+    folder = Path(folder)
+    if not folder.exists():
+        return ()
+    if not folder.is_dir():
+        raise InputError("exists and is not a folder; give another output folder", str(folder))
+    entries = sorted(folder.iterdir())
+    if not entries:
+        return ()
+    unknown = [p.name + ("/" if p.is_dir() else "") for p in entries if p.is_dir() or not _is_run_file(p.name)]
+    ours = [p for p in entries if not p.is_dir() and _is_run_file(p.name)]
+    if unknown:
+        raise InputError(
+            f"{folder}: holds files a run does not write ({_listing(unknown)}); `overwrite` replaces only a "
+            "previous run's files, so move those away or give an empty or new folder")
+    if not overwrite:
+        raise InputError(
+            f"{folder}: already holds a run ({_listing(p.name for p in ours)}); give `overwrite` to replace it, "
+            "or an empty or new folder")
+    return tuple(ours)
 
 
 @dataclass(frozen=True)
@@ -662,6 +863,11 @@ class RunResult:
         return bool(self.verification.passed)
 
 
+def _now_utc() -> str:
+    """The time now, ISO 8601 in UTC to the second (``2026-12-04T19:00:00+00:00``)."""
+    return datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")
+
+
 def _sha256(path: Path) -> str:
     digest = hashlib.sha256()
     with open(path, "rb") as handle:
@@ -671,7 +877,8 @@ def _sha256(path: Path) -> str:
 
 
 def run_report(result_files: dict, folder: Path, drive_path: Path, profile: "AsdProfile", profile_source: str | None,
-               written: dict, verification: "Verification", run_warnings) -> dict:
+               written: dict, verification: "Verification", run_warnings, paper: str = "a4",
+               created_utc: str | None = None) -> dict:
     """The report.json object of a run (schema ``report.schema.json``, version :data:`REPORT_SCHEMA_VERSION`).
 
     Paths are relative to the folder; the drive and its sidecar carry SHA-256
@@ -692,7 +899,8 @@ def run_report(result_files: dict, folder: Path, drive_path: Path, profile: "Asd
     return {
         "schema_version": REPORT_SCHEMA_VERSION,
         "tool": {"name": "vibsynth", "version": __version__},
-        "created_utc": datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds"),
+        "created_utc": created_utc or _now_utc(),
+        "paper": paper,
         "drive": {"path": drive_path.name, "sha256": _sha256(drive_path)},
         "sidecar": {"path": side.name, "sha256": _sha256(side)},
         "profile": {"path": "profile.toml", **profile_block(profile, profile_source)},
@@ -727,6 +935,9 @@ class PreparedRun:
     prepared : PreparedDrive
     warnings : tuple of str
         Warnings of the planning (each also issued as a :class:`~vibsynth.errors.VibsynthWarning`).
+    previous_files : tuple of pathlib.Path
+        A previous run's files in the folder (``overwrite``), removed by
+        :func:`complete_run` before it writes.
     """
 
     request: RunRequest
@@ -735,6 +946,7 @@ class PreparedRun:
     drive_path: Path
     prepared: PreparedDrive
     warnings: tuple
+    previous_files: tuple = ()
 
 
 def prepare_run(profile: "AsdProfile", request: RunRequest) -> PreparedRun:
@@ -753,7 +965,8 @@ def prepare_run(profile: "AsdProfile", request: RunRequest) -> PreparedRun:
     Raises
     ------
     InputError
-        A request that cannot be carried out (nothing is left behind).
+        A request that cannot be carried out, or a folder that already holds
+        files (see :func:`check_run_folder`); nothing is changed.
 
     Examples
     --------
@@ -769,8 +982,7 @@ def prepare_run(profile: "AsdProfile", request: RunRequest) -> PreparedRun:
     See :func:`prepare_drive`.
     """
     folder = Path(request.folder)
-    if folder.exists() and not folder.is_dir():
-        raise InputError("exists and is not a folder; give another output folder", str(folder))
+    previous = check_run_folder(folder, request.overwrite)
     drive_path = folder / f"drive.{drivefile.drive_format('drive.' + request.file_format)}"
     drive_request = dataclasses.replace(request.drive, output=str(drive_path))
     folder_created = not folder.exists()
@@ -787,7 +999,7 @@ def prepare_run(profile: "AsdProfile", request: RunRequest) -> PreparedRun:
     for message in collected:
         warnings.warn(message, VibsynthWarning, stacklevel=2)
     return PreparedRun(request=request, profile=profile, folder=folder, drive_path=drive_path, prepared=prepared,
-                       warnings=tuple(collected))
+                       warnings=tuple(collected), previous_files=previous)
 
 
 def _merge_warnings(collected: list, caught) -> list:
@@ -834,6 +1046,10 @@ def complete_run(run: PreparedRun, progress: Callable[[int], None] | None = None
 
     request, profile, folder, drive_path = run.request, run.profile, run.folder, run.drive_path
     collected = list(run.warnings)
+    # a previous run (overwrite): its files go before anything is written, so the folder never holds an old
+    # drive, sidecar or report beside new ones (a run stopped half-way leaves no report.json at all)
+    for path in run.previous_files:
+        path.unlink(missing_ok=True)
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", VibsynthWarning)
         written = write_prepared_drive(run.prepared, progress)
@@ -842,14 +1058,17 @@ def complete_run(run: PreparedRun, progress: Callable[[int], None] | None = None
                                   request.min_fraction_within)
         verification = verify_drive(drive, profile, criteria, request.resolution_hz, request.dof)
         write_profile(profile, folder / "profile.toml")
-        figures = write_report_figures(verification, folder, title=f"{drive_path.name} ({profile.name})")
+        created = _now_utc()
+        facts = report_facts(drive, created_utc=created)
+        figures = write_report_figures(verification, folder, title=drive_path.name, facts=facts,
+                                       paper=request.paper)
     _merge_warnings(collected, caught)
     if verification.segment_message and verification.segment_message not in collected:
         collected.append(verification.segment_message)
     if not verification.passed:
         collected.append("the drive did NOT pass verification; see report.pdf before using it")
     report = run_report(figures, folder, drive_path, profile, run.prepared.request.profile_source or None, written,
-                        verification, collected)
+                        verification, collected, paper=request.paper, created_utc=created)
     write_json_atomic(folder / "report.json", report)
     for message in collected[len(run.warnings):]:  # those of the planning were issued by prepare_run
         warnings.warn(message, VibsynthWarning, stacklevel=2)
