@@ -239,15 +239,6 @@ PROGRESS_STEP_PERCENT = 5
 PROGRESS_MIN_INTERVAL_S = 10.0
 
 
-def progress_style(enabled: bool, as_json: bool = False) -> str | None:
-    """How to show progress: ``bar`` on a terminal, ``lines`` without one, ``json`` events with --json, or None."""
-    if not enabled:
-        return None
-    if as_json:
-        return "json"
-    return "bar" if is_interactive_stderr() else "lines"
-
-
 class Progress:
     """Progress over a count of samples, on stderr: a click bar, plain lines, JSON lines, or nothing.
 
@@ -256,7 +247,17 @@ class Progress:
     :data:`PROGRESS_STEP_PERCENT` (at most one line per
     :data:`PROGRESS_MIN_INTERVAL_S`; 0 % and 100 % always), so a run prints at
     most 21 of them whatever its length.  ``what`` names the work in lines and
-    events (e.g. ``writing drive.npy``).
+    events (e.g. ``writing drive.npy``).  Lines after the first say about how
+    long is left, from the rate so far (s).
+
+    Examples
+    --------
+    >>> with Progress(False, 100, "x") as progress:
+    ...     progress(50)
+
+    References
+    ----------
+    click.progressbar (the terminal bar); JSON Lines (one RFC 8259 object per line).
     """
 
     def __init__(self, enabled: bool, length: int, label: str, style: str | None = None, what: str | None = None):
@@ -308,8 +309,11 @@ class Progress:
                                    "total_samples": self.length, "percent": round(percent, 1),
                                    "elapsed_s": round(elapsed, 1)}), err=True)
         else:
+            left = ""
+            if 0 < self.done < self.length:
+                left = f", about {elapsed * (self.length - self.done) / self.done:.0f} s left"
             click.echo(f"vibsynth: {self.what}: {percent:3.0f} % ({self.done} of {self.length} samples, "
-                       f"{elapsed:.0f} s)", err=True)
+                       f"{elapsed:.0f} s{left})", err=True)
 
 
 def json_safe(value):

@@ -216,6 +216,21 @@ def dry_run_summary(prepared) -> dict:
     ``free_bytes`` (None when the file system will not say), ``fits``,
     ``rate_hz``, ``duration_s``, ``frame_length_samples``, ``line_spacing_hz``,
     ``file``, ``sidecar``, ``format``, ``subtype``, ``columns``, ``seed``.
+    Sizes in bytes, rate in Hz, duration in s.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> from vibsynth import jobs
+    >>> from vibsynth.profile.files import read_profile
+    >>> request = jobs.DriveRequest(str(pathlib.Path(tempfile.mkdtemp()) / "d.npy"), 2.0, 5120.0, seed=1)
+    >>> report = dry_run_summary(jobs.prepare_drive(read_profile("bench-flat"), request))
+    >>> report["samples"], report["bytes"], report["passes"]
+    (10240, 82048, 1)
+
+    References
+    ----------
+    See :func:`vibsynth.io.drivefile.storage_plan` (NumPy NEP 1, RIFF WAVE, FLAC, RFC 4180 sizes).
     """
     from vibsynth.io import drivefile
 
@@ -256,7 +271,21 @@ def _free_text(report: dict) -> str:
 
 
 def format_dry_run(report: dict) -> str:
-    """The plan of a drive as a short text block (``generate --dry-run``)."""
+    """The plan of a drive (from :func:`dry_run_summary`) as a short text block (``generate --dry-run``).
+
+    Examples
+    --------
+    >>> report = {"file": "d.npy", "sidecar": "d.npy.json", "format": "npy", "subtype": "float64",
+    ...           "columns": ["acceleration"], "mode": "periodic", "passes": 1, "samples": 10240, "rate_hz": 5120.0,
+    ...           "duration_s": 2.0, "frame_length_samples": 10240, "line_spacing_hz": 0.5, "bytes": 82048,
+    ...           "bytes_exact": True, "needed_bytes": 147584, "free_bytes": None, "fits": True}
+    >>> format_dry_run(report).splitlines()[0]
+    'would write d.npy (sidecar d.npy.json); nothing written'
+
+    References
+    ----------
+    See :func:`dry_run_summary`.
+    """
     passes = report["passes"]
     verdict = "fits" if report["fits"] else "does NOT fit; it would be refused"
     return "\n".join([
@@ -273,7 +302,20 @@ def format_dry_run(report: dict) -> str:
 
 
 def announce(prepared, as_json: bool = False) -> None:
-    """Say on stderr what is about to be written (size, passes, space), before the first sample is made."""
+    """Say on stderr what is about to be written (size, passes, space), before the first sample is made.
+
+    One line of text, or a JSON line ``{"event": "plan", ...}`` (the keys of
+    :func:`dry_run_summary`) with ``as_json``.
+
+    Examples
+    --------
+    >>> announce.__name__
+    'announce'
+
+    References
+    ----------
+    JSON Lines (one RFC 8259 object per line).
+    """
     import json
 
     report = dry_run_summary(prepared)

@@ -86,6 +86,16 @@ def verify_progress(drive, file, quiet: bool, as_json: bool) -> Progress:
     """Progress over reading a drive file (all passes): a bar on a terminal, lines without, JSON lines with --json.
 
     Shown for files of at least :data:`vibsynth.cli.common.PROGRESS_MIN_SAMPLES` samples, never with --quiet.
+    Counts samples read (the file is read :data:`vibsynth.jobs.VERIFY_PASSES` times).
+
+    Examples
+    --------
+    >>> verify_progress.__name__
+    'verify_progress'
+
+    References
+    ----------
+    See :class:`vibsynth.cli.common.Progress`.
     """
     from vibsynth.jobs import VERIFY_PASSES
 
