@@ -212,7 +212,7 @@ def test_progress_lines_without_a_terminal(tmp_path, profile_path, capsys, small
     lines = err.splitlines()
     summary = [i for i, line in enumerate(lines) if "pass" in line and "over the record" in line]
     progress = _progress_lines(err)
-    assert summary and "MB" in lines[summary[0]] or "kB" in lines[summary[0]]
+    assert summary and re.search(r"\d (kB|MB) \(", lines[summary[0]])
     assert f"{passes} pass" in lines[summary[0]]
     assert 3 <= len(progress) <= 21
     percents = [p for p, _, _ in progress]
