@@ -230,15 +230,53 @@ def is_interactive_stderr() -> bool:
         return False
 
 
-class Progress:
-    """A click progress bar on stderr (counting samples), or nothing when disabled."""
+#: Records shorter than this many samples show no progress (bar, lines or events): they take a moment.
+PROGRESS_MIN_SAMPLES = 1 << 21
 
-    def __init__(self, enabled: bool, length: int, label: str):
-        self.bar = click.progressbar(length=length, label=label, file=sys.stderr) if enabled else None
+#: Without a terminal, a progress line each time the work crosses this many per cent ...
+PROGRESS_STEP_PERCENT = 5
+#: ... but not sooner than this many seconds after the previous line (the last line always shows).
+PROGRESS_MIN_INTERVAL_S = 10.0
+
+
+class Progress:
+    """Progress over a count of samples, on stderr: a click bar, plain lines, JSON lines, or nothing.
+
+    ``enabled`` True with no ``style`` keeps the old behaviour (a bar).  The
+    ``lines`` and ``json`` styles print when the work crosses a multiple of
+    :data:`PROGRESS_STEP_PERCENT` (at most one line per
+    :data:`PROGRESS_MIN_INTERVAL_S`; 0 % and 100 % always), so a run prints at
+    most 21 of them whatever its length.  ``what`` names the work in lines and
+    events (e.g. ``writing drive.npy``).  Lines after the first say about how
+    long is left, from the rate so far (s).
+
+    Examples
+    --------
+    >>> with Progress(False, 100, "x") as progress:
+    ...     progress(50)
+
+    References
+    ----------
+    click.progressbar (the terminal bar); JSON Lines (one RFC 8259 object per line).
+    """
+
+    def __init__(self, enabled: bool, length: int, label: str, style: str | None = None, what: str | None = None):
+        self.style = (style or "bar") if enabled else None
+        self.length = max(int(length), 1)
+        self.label = label
+        self.what = what or label
+        self.done = 0
+        self.started = time.monotonic()
+        self._last_step = -1
+        self._last_time = None
+        self.bar = (click.progressbar(length=length, label=label, file=sys.stderr)
+                    if self.style == "bar" else None)
 
     def __enter__(self):
         if self.bar is not None:
             self.bar.__enter__()
+        elif self.style is not None:
+            self._emit(0, force=True)
         return self
 
     def __exit__(self, *exc):
@@ -246,8 +284,36 @@ class Progress:
             self.bar.__exit__(*exc)
 
     def __call__(self, samples: int) -> None:
+        if self.style is None:
+            return
         if self.bar is not None:
             self.bar.update(samples)
+            return
+        self.done = min(self.done + int(samples), self.length)
+        percent = 100.0 * self.done / self.length
+        step = int(percent // PROGRESS_STEP_PERCENT)
+        if step > self._last_step:
+            self._emit(step, force=self.done >= self.length)
+
+    def _emit(self, step: int, force: bool = False) -> None:
+        now = time.monotonic()
+        if not force and self._last_time is not None and now - self._last_time < PROGRESS_MIN_INTERVAL_S:
+            return
+        self._last_step, self._last_time = step, now
+        percent = 100.0 * self.done / self.length
+        elapsed = now - self.started
+        if self.style == "json":
+            import json
+
+            click.echo(json.dumps({"event": "progress", "what": self.what, "done_samples": self.done,
+                                   "total_samples": self.length, "percent": round(percent, 1),
+                                   "elapsed_s": round(elapsed, 1)}), err=True)
+        else:
+            left = ""
+            if 0 < self.done < self.length:
+                left = f", about {elapsed * (self.length - self.done) / self.done:.0f} s left"
+            click.echo(f"vibsynth: {self.what}: {percent:3.0f} % ({self.done} of {self.length} samples, "
+                       f"{elapsed:.0f} s{left})", err=True)
 
 
 def json_safe(value):

@@ -9,6 +9,7 @@ import click
 
 from vibsynth.cli import options
 from vibsynth.cli.common import (
+    PROGRESS_MIN_SAMPLES,
     Progress,
     caution,
     check_limits_in_inches,
@@ -27,8 +28,8 @@ from vibsynth.cli.common import (
 from vibsynth.cli import types
 from vibsynth.cli.common import DRIVE_CAUTION
 
-#: Records longer than this many samples show a progress bar (on a terminal).
-PROGRESS_MIN_SAMPLES = 1 << 21
+#: Records of at least PROGRESS_MIN_SAMPLES samples show progress (a bar on a terminal, lines or --json events
+#: without); imported from :mod:`vibsynth.cli.common` and looked up here, so it can be changed per module.
 
 
 @contextlib.contextmanager
@@ -78,12 +79,16 @@ clip_option = options.clip
               show_default=True, metavar="MB",
               help="Working memory for one periodic inverse FFT of the whole record; longer records are made by "
                    "overlap-add of independent frames in constant memory.")
+@click.option("--dry-run", is_flag=True,
+              help="Plan the drive and report it (mode, passes, samples, file size, space free) without writing "
+                   "anything; exit 0 when it would be written, 2 when it would be refused.")
 @options.inch
-@options.json_output
+@options.json_output.but(help="Print the summary as JSON on stdout; progress (long records) goes to stderr as "
+                              "JSON lines ({\"event\": \"plan\"|\"progress\", ...}).")
 @options.quiet
 def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms, level_db,
-             kurtosis, skewness, clip, resolution, loop, quantities, subtype, full_scale_g, memory_budget_mb, inch,
-             as_json, command_quiet):
+             kurtosis, skewness, clip, resolution, loop, quantities, subtype, full_scale_g, memory_budget_mb, dry_run,
+             inch, as_json, command_quiet):
     """Write a drive time history whose spectrum is PROFILE's: Gaussian, or with a kurtosis, skewness or clip level.
 
     Random phases on an inverse-FFT frequency grid: one periodic record when it
@@ -105,6 +110,14 @@ def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_li
     unreachable). Velocity/displacement columns stay Gaussian-only. A
     non-Gaussian drive has higher peaks than a Gaussian one (see `vibsynth
     peaks`): check the rig's force and stroke margins for them.
+
+    Before writing, the file's size is worked out (exact for .wav/.npy, an
+    upper bound for .flac/.csv) and the drive is refused (exit 2) when the
+    folder cannot hold it and its sidecar.  A long record (2^21 samples or
+    more) has its size and number of passes printed on stderr first (not with
+    --quiet), and reports progress: a bar on a terminal, a line every 5 % (at most one
+    per 10 s) without one, JSON lines with --json.  --dry-run stops after that
+    report.
 
     A drive file is open-loop: play it only through a closed-loop controller
     with alarm and abort limits, within the shaker's stroke, velocity and force
@@ -138,10 +151,26 @@ def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_li
         skewness=skewness,
         clip=clip,
     )
-    prepared = drive_job.prepare_drive(target, request)
+    if dry_run:  # plan even when it will not fit, to say so
+        prepared = drive_job.prepare_drive(target, request, refuse_when_full=False)
+    else:
+        prepared = drive_job.prepare_drive(target, request)
     for message in prepared.warnings:
         warn(message)
-    written = write_with_progress(prepared, quiet or as_json)
+    if dry_run:
+        report = dry_run_summary(prepared)
+        if as_json:
+            print_json(report)
+        elif not quiet:
+            click.echo(format_dry_run(report))
+        if not prepared.storage.get("fits", True):
+            from vibsynth.io import drivefile
+
+            raise drivefile.space_refusal(request.output, prepared.storage)
+        return
+    if not quiet and prepared.plan.total_samples >= PROGRESS_MIN_SAMPLES:  # a short record is written at once
+        announce(prepared, as_json)
+    written = write_with_progress(prepared, quiet, as_json)
     if as_json:
         print_json(drive_summary(prepared, written))
     elif not quiet:
@@ -149,11 +178,11 @@ def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_li
     caution()
 
 
-def write_with_progress(prepared, quiet: bool) -> dict:
-    """Write a prepared drive, with a progress bar on a terminal and clean removal on SIGTERM."""
+def write_with_progress(prepared, quiet: bool, as_json: bool = False) -> dict:
+    """Write a prepared drive with progress on stderr (unless ``quiet``) and clean removal on SIGTERM."""
     from vibsynth import jobs as drive_job
 
-    with progress_for(prepared, quiet) as progress:
+    with progress_for(prepared, quiet, as_json) as progress:
         written = drive_job.write_prepared_drive(prepared, progress)
     mark_drive_written()
     note(f"wrote {prepared.request.output}")
@@ -161,13 +190,142 @@ def write_with_progress(prepared, quiet: bool) -> dict:
 
 
 @contextlib.contextmanager
-def progress_for(prepared, quiet: bool):
-    """A progress callback for writing ``prepared`` (a bar on a terminal), with clean removal on SIGTERM."""
+def progress_for(prepared, quiet: bool, as_json: bool = False):
+    """A progress callback for writing ``prepared``, with clean removal on SIGTERM.
+
+    A record of at least :data:`PROGRESS_MIN_SAMPLES` samples shows a bar on a
+    terminal, a line every few per cent without one, or JSON lines with
+    ``as_json``; nothing with ``quiet``.
+    """
     total = prepared.plan.total_samples
-    show = is_interactive_stderr() and not quiet and total >= PROGRESS_MIN_SAMPLES
+    enabled = not quiet and total >= PROGRESS_MIN_SAMPLES
+    style = None
+    if enabled:
+        style = "json" if as_json else ("bar" if is_interactive_stderr() else "lines")
     note(f"writing {prepared.request.output}: {total} samples, {prepared.plan.mode}, {prepared.passes} pass(es)")
-    with _terminate_as_interrupt(), Progress(show, prepared.passes * total, "generating") as progress:
+    what = f"writing {prepared.request.output}" + (f" ({prepared.passes} passes)" if prepared.passes > 1 else "")
+    with _terminate_as_interrupt(), Progress(enabled, prepared.passes * total, "generating", style, what) as progress:
         yield progress
+
+
+def dry_run_summary(prepared) -> dict:
+    """The plan of a drive as plain data (``generate --dry-run --json``; the ``plan`` event before writing).
+
+    Keys: ``mode``, ``passes``, ``samples``, ``bytes`` (the file; exact when
+    ``bytes_exact``, else an upper bound), ``needed_bytes`` (with the sidecar),
+    ``free_bytes`` (None when the file system will not say), ``fits``,
+    ``rate_hz``, ``duration_s``, ``frame_length_samples``, ``line_spacing_hz``,
+    ``file``, ``sidecar``, ``format``, ``subtype``, ``columns``, ``seed``.
+    Sizes in bytes, rate in Hz, duration in s.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> from vibsynth import jobs
+    >>> from vibsynth.profile.files import read_profile
+    >>> request = jobs.DriveRequest(str(pathlib.Path(tempfile.mkdtemp()) / "d.npy"), 2.0, 5120.0, seed=1)
+    >>> report = dry_run_summary(jobs.prepare_drive(read_profile("bench-flat"), request))
+    >>> report["samples"], report["bytes"], report["passes"]
+    (10240, 82048, 1)
+
+    References
+    ----------
+    See :func:`vibsynth.io.drivefile.storage_plan` (NumPy NEP 1, RIFF WAVE, FLAC, RFC 4180 sizes).
+    """
+    from vibsynth.io import drivefile
+
+    plan, request, storage = prepared.plan, prepared.request, prepared.storage
+    return {
+        "file": str(request.output),
+        "sidecar": str(drivefile.sidecar_path(request.output)),
+        "format": prepared.file_format,
+        "subtype": prepared.subtype,
+        "columns": list(plan.quantities),
+        "mode": plan.mode,
+        "passes": prepared.passes,
+        "samples": plan.total_samples,
+        "rate_hz": plan.rate_hz,
+        "duration_s": plan.total_samples / plan.rate_hz,
+        "frame_length_samples": plan.frame_length,
+        "line_spacing_hz": plan.resolution_hz,
+        "seed": request.seed,
+        "bytes": storage.get("bytes"),
+        "bytes_exact": storage.get("bytes_exact"),
+        "needed_bytes": storage.get("needed_bytes"),
+        "free_bytes": storage.get("free_bytes"),
+        "fits": bool(storage.get("fits", True)),
+    }
+
+
+def _size_text(report: dict) -> str:
+    from vibsynth.io.drivefile import format_bytes
+
+    size = format_bytes(report["bytes"])
+    return size if report["bytes_exact"] else f"up to {size}"
+
+
+def _free_text(report: dict) -> str:
+    from vibsynth.io.drivefile import format_bytes
+
+    return "free space unknown" if report["free_bytes"] is None else f"{format_bytes(report['free_bytes'])} free"
+
+
+def format_dry_run(report: dict) -> str:
+    """The plan of a drive (from :func:`dry_run_summary`) as a short text block (``generate --dry-run``).
+
+    Examples
+    --------
+    >>> report = {"file": "d.npy", "sidecar": "d.npy.json", "format": "npy", "subtype": "float64",
+    ...           "columns": ["acceleration"], "mode": "periodic", "passes": 1, "samples": 10240, "rate_hz": 5120.0,
+    ...           "duration_s": 2.0, "frame_length_samples": 10240, "line_spacing_hz": 0.5, "bytes": 82048,
+    ...           "bytes_exact": True, "needed_bytes": 147584, "free_bytes": None, "fits": True}
+    >>> format_dry_run(report).splitlines()[0]
+    'would write d.npy (sidecar d.npy.json); nothing written'
+
+    References
+    ----------
+    See :func:`dry_run_summary`.
+    """
+    passes = report["passes"]
+    verdict = "fits" if report["fits"] else "does NOT fit; it would be refused"
+    return "\n".join([
+        f"would write {report['file']} (sidecar {report['sidecar']}); nothing written",
+        f"  samples     {report['samples']} at {report['rate_hz']:g} Hz ({report['duration_s']:g} s), "
+        f"{report['format']} {report['subtype']}, columns {', '.join(report['columns'])}",
+        f"  size        {_size_text(report)} ({report['bytes']} bytes"
+        + ("" if report["bytes_exact"] else ", an upper bound") + f"); with the sidecar {report['needed_bytes']} "
+        f"bytes; {_free_text(report)}: {verdict}",
+        f"  generation  {report['mode']}, {'record' if report['mode'] == 'periodic' else 'frames'} of "
+        f"{report['frame_length_samples']} samples ({report['line_spacing_hz']:.4g} Hz lines), "
+        f"{passes} pass{'es' if passes > 1 else ''} over the record",
+    ])
+
+
+def announce(prepared, as_json: bool = False) -> None:
+    """Say on stderr what is about to be written (size, passes, space), before the first sample is made.
+
+    One line of text, or a JSON line ``{"event": "plan", ...}`` (the keys of
+    :func:`dry_run_summary`) with ``as_json``.
+
+    Examples
+    --------
+    >>> announce.__name__
+    'announce'
+
+    References
+    ----------
+    JSON Lines (one RFC 8259 object per line).
+    """
+    import json
+
+    report = dry_run_summary(prepared)
+    if as_json:
+        click.echo(json.dumps({"event": "plan", **report}), err=True)
+        return
+    passes = report["passes"]
+    click.echo(f"vibsynth: writing {report['file']}: {report['samples']} samples at {report['rate_hz']:g} Hz "
+               f"({report['duration_s']:g} s), {_size_text(report)} ({_free_text(report)}), {report['mode']}, "
+               f"{passes} pass{'es' if passes > 1 else ''} over the record", err=True)
 
 
 def drive_summary(prepared, written: dict) -> dict:

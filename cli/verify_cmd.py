@@ -8,7 +8,8 @@ from pathlib import Path
 import click
 
 from vibsynth.cli import options
-from vibsynth.cli.common import is_quiet, load_profile, note, warn
+from vibsynth.cli import common
+from vibsynth.cli.common import Progress, is_quiet, load_profile, note, warn
 from vibsynth.cli.types import ProfileSpec, parse_tolerance  # noqa: F401  (parse_tolerance: used by run)
 
 #: Samples per chunk read from a drive file.
@@ -81,6 +82,31 @@ def format_verification(result, name: str) -> str:
     return "\n".join(lines)
 
 
+def verify_progress(drive, file, quiet: bool, as_json: bool) -> Progress:
+    """Progress over reading a drive file (all passes): a bar on a terminal, lines without, JSON lines with --json.
+
+    Shown for files of at least :data:`vibsynth.cli.common.PROGRESS_MIN_SAMPLES` samples, never with --quiet.
+    Counts samples read (the file is read :data:`vibsynth.jobs.VERIFY_PASSES` times).
+
+    Examples
+    --------
+    >>> verify_progress.__name__
+    'verify_progress'
+
+    References
+    ----------
+    See :class:`vibsynth.cli.common.Progress`.
+    """
+    from vibsynth.jobs import VERIFY_PASSES
+
+    enabled = not quiet and drive.samples >= common.PROGRESS_MIN_SAMPLES
+    style = None
+    if enabled:
+        style = "json" if as_json else ("bar" if common.is_interactive_stderr() else "lines")
+    return Progress(enabled, VERIFY_PASSES * drive.samples, "verifying", style,
+                    f"verifying {file} ({VERIFY_PASSES} passes)")
+
+
 #: The verification options, declared once in :mod:`vibsynth.cli.options` (shared with `vibsynth run`).
 _tolerance_option = options.tolerance
 _grms_tolerance_option = options.grms_tolerance
@@ -127,7 +153,8 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     target = load_profile(profile_spec, level_db=level_db) if profile_spec else jobs.drive_target(drive)
     criteria = jobs.drive_criteria(drive, parse_tolerance(tolerance), grms_tolerance, min_fraction)
     note(f"verifying {file} ({drive.samples} samples at {drive.rate_hz:g} Hz) against {target.name}")
-    result = jobs.verify_drive(drive, target, criteria, resolution, dof)
+    with verify_progress(drive, file, is_quiet(command_quiet), as_json) as progress:
+        result = jobs.verify_drive(drive, target, criteria, resolution, dof, progress)
     if result.segment_message:
         warn(result.segment_message)
     data = jobs.verification_data(result, drive, str(file))

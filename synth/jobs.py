@@ -170,6 +170,7 @@ class PreparedDrive:
     seed: int
     warnings: tuple
     design: nongaussian.NonGaussianDesign | None = None
+    storage: dict = field(default_factory=dict)
 
     @property
     def passes(self) -> int:
@@ -178,7 +179,7 @@ class PreparedDrive:
         return 2 if needs_peak and self.plan.mode == "overlap-add" else 1
 
 
-def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
+def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: bool = True) -> PreparedDrive:
     """Check a drive request completely and plan it; nothing is written.
 
     Parameters
@@ -186,10 +187,17 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     profile : AsdProfile
         Target ASD (g^2/Hz), already rescaled as asked.
     request : DriveRequest
+    refuse_when_full : bool
+        Raise when the destination folder lacks the space for the file and
+        its sidecar (False: plan anyway and say so in ``storage["fits"]``,
+        for a dry run).
 
     Returns
     -------
     PreparedDrive
+        Its ``storage`` holds the file size (bytes, exact or an upper
+        bound), the space needed with the sidecar, the space free and
+        whether it fits (see :func:`vibsynth.io.drivefile.storage_plan`).
 
     Raises
     ------
@@ -243,8 +251,13 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         transform=transform,
     )
     drivefile.check_drive_request(
-        request.output, rate_hz=plan.rate_hz, samples=plan.total_samples, quantities=plan.quantities, subtype=subtype
+        request.output, rate_hz=plan.rate_hz, samples=plan.total_samples, quantities=plan.quantities, subtype=subtype,
+        check_space=False,
     )
+    storage = drivefile.storage_plan(request.output, file_format, subtype, plan.total_samples, plan.quantities,
+                                     plan.rate_hz)
+    if refuse_when_full and not storage["fits"]:
+        raise drivefile.space_refusal(request.output, storage)
     grms_lines = plan.line_variance**0.5
     design = None
     if transform is not None:
@@ -312,6 +325,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         seed=seed,
         warnings=tuple(plan.warnings),
         design=design,
+        storage=storage,
     )
 
 
@@ -373,6 +387,9 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
 # ====================================================================== verify side
 #: Samples per chunk read from a drive file while verifying.
 READ_CHUNK_SAMPLES = 1 << 18
+
+#: Passes :func:`verify_drive` makes over a drive file (statistics and spectrum, then the checks that need them).
+VERIFY_PASSES = 2
 
 #: Layout version of report.json (0.1 wrote an unversioned layout, counted as 1).
 REPORT_SCHEMA_VERSION = 2
@@ -458,7 +475,7 @@ def drive_target(drive) -> "AsdProfile":
 
 
 def verify_drive(drive, target, criteria, resolution_hz: float | None = None,
-                 dof: float | None = None) -> "Verification":
+                 dof: float | None = None, progress: Callable[[int], None] | None = None) -> "Verification":
     """Verify an open drive file against a target (streamed, two passes); errors name the file.
 
     Parameters
@@ -471,6 +488,10 @@ def verify_drive(drive, target, criteria, resolution_hz: float | None = None,
         Welch line spacing, Hz.
     dof : float, optional
         Degrees of freedom to aim at.
+    progress : callable, optional
+        Called with a sample count after each chunk read; the file is read
+        :data:`VERIFY_PASSES` times, so the counts add up to that many times
+        ``drive.samples``.
 
     Returns
     -------
@@ -497,9 +518,16 @@ def verify_drive(drive, target, criteria, resolution_hz: float | None = None,
     from vibsynth.analysis.verify import verify_record
 
     start, stop = drive.steady_range
+
+    def chunks():
+        for chunk in drive.iter_chunks(READ_CHUNK_SAMPLES):
+            yield chunk
+            if progress is not None:
+                progress(len(chunk))
+
     try:
         return verify_record(
-            lambda: drive.iter_chunks(READ_CHUNK_SAMPLES),
+            chunks,
             drive.rate_hz,
             target,
             criteria,

@@ -11,6 +11,7 @@ RFC 4180 (CSV).
 from __future__ import annotations
 
 import itertools
+import math
 from pathlib import Path
 from typing import Iterator
 
@@ -44,9 +45,17 @@ def estimate_bytes(samples: int, quantities, rate_hz: float) -> tuple[int, bool]
     """
     count = int(samples)
     quantities = tuple(quantities)
-    last_time = len(TIME_FORMAT % (max(count - 1, 0) / float(rate_hz)))
+    rate = float(rate_hz)
+    # the time column is known: 9 decimals, a point, and one more integer digit from each power of ten on
+    # (counted from a nanosecond early, so rounding up to the next power never makes the bound short)
+    time_chars = count * len(TIME_FORMAT % 0.0)
+    power = 10.0
+    while count and (count - 1) / rate >= power - 1e-9:
+        first = max(0, math.floor((power - 1e-9) * rate))
+        time_chars += count - first
+        power *= 10.0
     header = len("time_s") + sum(1 + len(COLUMN_NAMES.get(q, q)) for q in quantities) + 1
-    return header + count * (last_time + len(quantities) * (1 + VALUE_MAX_CHARS) + 1), False
+    return header + time_chars + count * (len(quantities) * (1 + VALUE_MAX_CHARS) + 1), False
 
 
 class CsvWriter:

@@ -134,11 +134,26 @@ def full_scale_from_peak(peak: float, headroom: float = DEFAULT_HEADROOM) -> flo
 
 
 # ----------------------------------------------------------------- writing
-def _format_bytes(count: int) -> str:
+def format_bytes(count: int) -> str:
+    """A byte count for people, in SI units (kB = 1000 bytes), three significant digits.
+
+    Examples
+    --------
+    >>> format_bytes(17_694_720_128)
+    '17.7 GB'
+
+    References
+    ----------
+    SI prefixes (BIPM SI Brochure, 9th edition).
+    """
+    count = int(count)
     for unit, size in (("TB", 10**12), ("GB", 10**9), ("MB", 10**6), ("kB", 10**3)):
         if count >= size:
             return f"{count / size:.3g} {unit}"
     return f"{count} bytes"
+
+
+_format_bytes = format_bytes
 
 
 def estimate_file_bytes(file_format: str, subtype: str, samples: int, quantities=("acceleration",),
@@ -179,6 +194,87 @@ def estimate_file_bytes(file_format: str, subtype: str, samples: int, quantities
     return csvtable.estimate_bytes(samples, quantities, rate_hz)
 
 
+def free_bytes(folder) -> int | None:
+    """Bytes free to an unprivileged user in ``folder``, or None when the file system will not say.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> free_bytes(tempfile.gettempdir()) >= 0
+    True
+
+    References
+    ----------
+    POSIX statvfs (free blocks available to unprivileged users), through
+    :func:`shutil.disk_usage`.
+    """
+    try:
+        return int(shutil.disk_usage(folder).free)
+    except OSError:
+        return None
+
+
+def storage_plan(path, file_format: str, subtype: str, samples: int, quantities=("acceleration",),
+                 rate_hz: float = 1.0) -> dict:
+    """What writing a drive file will take on disk, and whether its folder has the room.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        Destination file (its folder is probed for free space).
+    file_format, subtype, samples, quantities, rate_hz
+        As for :func:`estimate_file_bytes`.
+
+    Returns
+    -------
+    dict
+        ``bytes`` (the file: exact for .wav/.npy, an upper bound for
+        .flac/.csv), ``bytes_exact`` (bool), ``sidecar_allowance_bytes``,
+        ``needed_bytes`` (file + sidecar allowance), ``free_bytes`` (None when
+        the file system will not say) and ``fits`` (True when unknown).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> plan = storage_plan(pathlib.Path(tempfile.mkdtemp()) / "d.npy", "npy", "float64", 10)
+    >>> plan["bytes"], plan["bytes_exact"], plan["needed_bytes"] - plan["bytes"]
+    (208, True, 65536)
+
+    References
+    ----------
+    See :func:`estimate_file_bytes` and :func:`free_bytes`.
+    """
+    size, exact = estimate_file_bytes(file_format, subtype, samples, quantities, rate_hz)
+    needed = int(size) + SIDECAR_ALLOWANCE_BYTES
+    free = free_bytes(Path(path).parent)
+    return {"bytes": int(size), "bytes_exact": bool(exact), "sidecar_allowance_bytes": SIDECAR_ALLOWANCE_BYTES,
+            "needed_bytes": needed, "free_bytes": free, "fits": free is None or needed <= free}
+
+
+def space_refusal(path, storage: dict) -> InputError:
+    """The one-line refusal for a drive file that will not fit (``storage`` from :func:`storage_plan`).
+
+    Examples
+    --------
+    >>> plan = {"bytes": 10**9, "bytes_exact": True, "needed_bytes": 10**9 + 65536, "free_bytes": 10**6}
+    >>> "not enough disk space" in space_refusal("/tmp/d.npy", plan).message
+    True
+
+    References
+    ----------
+    See :func:`storage_plan`.
+    """
+    needed, free = int(storage["needed_bytes"]), int(storage["free_bytes"])
+    folder = Path(path).parent
+    size = _format_bytes(needed) if storage["bytes_exact"] else f"up to {_format_bytes(needed)}"
+    return InputError(
+        f"not enough disk space: the file and its sidecar need {size} ({needed} bytes) but folder "
+        f"{str(folder)!r} has {_format_bytes(free)} ({free} bytes) free; free some space, write to another "
+        "folder, or ask for a shorter record",
+        str(path),
+    )
+
+
 def check_free_space(path, needed_bytes: int, exact: bool = True) -> None:
     """Refuse up front when the destination's folder cannot hold a file of ``needed_bytes``.
 
@@ -196,25 +292,22 @@ def check_free_space(path, needed_bytes: int, exact: bool = True) -> None:
     InputError
         Naming the size needed, the space free and the folder.
 
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> check_free_space(pathlib.Path(tempfile.mkdtemp()) / "d.npy", 1000)
+
     References
     ----------
     POSIX statvfs (free blocks available to unprivileged users), through
     :func:`shutil.disk_usage`.
     """
-    folder = Path(path).parent
-    try:
-        free = int(shutil.disk_usage(folder).free)
-    except OSError:  # the file system will not say; the write itself will tell
+    free = free_bytes(Path(path).parent)
+    if free is None:  # the file system will not say; the write itself will tell
         return
     needed = int(needed_bytes) + SIDECAR_ALLOWANCE_BYTES
     if needed > free:
-        size = _format_bytes(needed) if exact else f"up to {_format_bytes(needed)}"
-        raise InputError(
-            f"not enough disk space: the file and its sidecar need {size} ({needed} bytes) but folder "
-            f"{str(folder)!r} has {_format_bytes(free)} ({free} bytes) free; free some space, write to another "
-            "folder, or ask for a shorter record",
-            str(path),
-        )
+        raise space_refusal(path, {"needed_bytes": needed, "free_bytes": free, "bytes_exact": exact})
 
 
 def remove_stale_partials(path, min_age_s: float = STALE_PARTIAL_AGE_S) -> list:
@@ -247,13 +340,16 @@ def remove_stale_partials(path, min_age_s: float = STALE_PARTIAL_AGE_S) -> list:
 
 
 def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
-                        scale: float = 1.0) -> dict:
+                        scale: float = 1.0, check_space: bool = True) -> dict:
     """Check that a drive file can be written as asked, before any work is done (no file is created).
 
     Parameters
     ----------
     path, rate_hz, samples, quantities, subtype, scale
         As for :class:`DriveWriter`.
+    check_space : bool
+        Refuse when the folder lacks the space (False: the caller checks it,
+        e.g. with :func:`storage_plan`).
 
     Returns
     -------
@@ -308,7 +404,8 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
         raise InputError(f"folder {str(path.parent)!r} does not exist; create it first", str(path))
     if path.is_dir():
         raise InputError("is a folder; give a file name such as drive.flac", str(path))
-    check_free_space(path, *estimate_file_bytes(file_format, subtype, count, quantities, rate))
+    if check_space:
+        check_free_space(path, *estimate_file_bytes(file_format, subtype, count, quantities, rate))
     return {"format": file_format, "subtype": subtype, "quantities": quantities, "rate_hz": rate,
             "samples": count, "scale": scale}
 
@@ -771,6 +868,10 @@ __all__ = [
     "check_subtype",
     "drive_format",
     "estimate_file_bytes",
+    "format_bytes",
+    "free_bytes",
+    "space_refusal",
+    "storage_plan",
     "full_scale_from_peak",
     "open_drive",
     "remove_stale_partials",
