@@ -342,3 +342,14 @@ def test_batch_help_loads_neither_numpy_nor_dask():
     assert result.returncode == 0, result.stderr
     assert result.stdout.strip().endswith("[]")
     assert "--scheduler" in result.stdout and "pip install 'vibsynth[cluster]'" in result.stdout
+
+
+def test_readme_plan_example_is_a_valid_plan(tmp_path):
+    text = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    section = text[text.index("### Batches on Dask"):]
+    example = section[section.index("```toml") + len("```toml"):section.index("```", section.index("```toml") + 7)]
+    plan = batches.parse_plan(example, "README.md")
+    assert [job.seeds for job in plan.jobs] == [(1, 2, 3), (100, 101, 102, 103)]
+    prepared = batches.prepare_batch(plan, tmp_path / "out")  # every profile read, every drive planned
+    assert [task.drive_name for task in prepared.tasks][:2] == ["conveyor-m6-seed1.flac", "conveyor-m6-seed2.flac"]
+    assert len(prepared.tasks) == 7 and not prepared.done
