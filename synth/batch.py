@@ -787,6 +787,59 @@ def dask_client(scheduler: str | None = None, workers: int | None = None):
             yield client
 
 
+class dask_mapper:  # noqa: N801 - used like a function
+    """A ``mapper(function, items)`` that runs on a Dask client and yields the results in order.
+
+    For :func:`vibsynth.peaks.peak_report` (``mapper=``): the Monte-Carlo
+    records are made on the workers, each from its own spawn key, so the
+    numbers equal those made in one process.
+
+    Parameters
+    ----------
+    client : distributed.Client
+    block_records : int, optional
+        Records per task (default 1).
+
+    Examples
+    --------
+    >>> with dask_client(workers=1) as client:
+    ...     list(dask_mapper(client)(abs, [-1, -2]))
+    [1, 2]
+
+    References
+    ----------
+    Dask Development Team (2016), https://distributed.dask.org (``Client.map``).
+    """
+
+    def __init__(self, client, block_records: int = 1):
+        self.client = client
+        self.block_records = max(1, int(block_records))
+
+    def __call__(self, function, items):
+        futures = self.client.map(function, list(items), pure=False)
+        try:
+            for future in futures:
+                yield future.result()
+        finally:
+            self.client.cancel(futures)
+
+
+def worker_count(client) -> int:
+    """Workers a client's scheduler has now (at least 1).
+
+    Examples
+    --------
+    >>> with dask_client(workers=1) as client:
+    ...     worker_count(client)
+    1
+
+    References
+    ----------
+    Dask Development Team (2016), ``Client.scheduler_info``.
+    """
+    return max(1, len(client.scheduler_info().get("workers", {})))
+
+
 @dataclass(frozen=True)
 class BatchResult:
     """What a batch did: every row (plan order), the summary files, the warnings.
@@ -932,6 +985,6 @@ def write_summary(batch: PreparedBatch, rows, wall_time_s: float) -> tuple[dict,
 
 __all__ = [
     "BatchJob", "BatchPlan", "BatchResult", "BatchTask", "PreparedBatch", "INSTALL_HINT", "SUMMARY_COLUMNS",
-    "dask_client", "default_worker_count", "parse_plan", "prepare_batch", "read_plan", "require_dask",
+    "dask_client", "dask_mapper", "default_worker_count", "worker_count", "parse_plan", "prepare_batch", "read_plan", "require_dask",
     "run_batch", "run_task", "write_summary",
 ]

@@ -37,7 +37,7 @@ distributed = pytest.importorskip("distributed")
 
 BRACKET_CSV = "frequency_hz,asd_g2_per_hz\n20,0.01\n80,0.04\n350,0.04\n2000,0.005\n"  # invented bracket
 
-#: Eight drives over five jobs: presets and a profile file, every format, rescaling, non-Gaussian options.
+#: Ten drives over seven jobs: presets and a profile file, every format, rescaling, non-Gaussian options.
 PLAN = textwrap.dedent("""\
     title = "Invented test campaign"
 
@@ -83,11 +83,28 @@ PLAN = textwrap.dedent("""\
     format = "csv"
     amplitude = "rayleigh"
     seeds = [8, 9]
+
+    [[jobs]]
+    name = "flat-frames"           # overlap-add: the record does not fit the memory budget
+    profile = "bench-flat"
+    format = "npy"
+    duration_s = 20
+    memory_budget_mb = 1
+    seeds = [4]
+
+    [[jobs]]
+    name = "bracket-k4-frames"     # overlap-add, non-Gaussian
+    profile = "profiles/bracket.csv"
+    format = "flac"
+    kurtosis = 4
+    duration_s = 20
+    memory_budget_mb = 1
+    seeds = [5]
 """)
 
 #: Plan key -> the `vibsynth generate` option that sets the same thing.
 GENERATE_OPTIONS = {"level_db": "--level-db", "grms": "--grms", "kurtosis": "--kurtosis", "clip": "--clip",
-                    "ramp_s": "--ramp", "amplitude": "--amplitude"}
+                    "ramp_s": "--ramp", "amplitude": "--amplitude", "memory_budget_mb": "--memory-budget"}
 
 
 def _write_plan(folder: Path, text: str = PLAN) -> Path:
@@ -111,8 +128,9 @@ def two_workers():
 
 def test_plan_expands_seeds_and_defaults_and_hashes_each_job():
     plan = batches.parse_plan(PLAN, "plan.toml", "/campaign")
-    assert [job.name for job in plan.jobs] == ["flat", "bracket-m6", "bracket-k5", "conveyor-clip", "conveyor-csv"]
-    assert plan.task_count == 8
+    assert [job.name for job in plan.jobs][:5] == ["flat", "bracket-m6", "bracket-k5", "conveyor-clip",
+                                                   "conveyor-csv"]
+    assert plan.task_count == 10
     k5 = plan.jobs[2]
     assert k5.seeds == (20, 21)  # seed_count 2 from base_seed 20
     assert k5.profile == "profiles/bracket.csv" and k5.profile_path == "/campaign/profiles/bracket.csv"
@@ -179,12 +197,15 @@ def test_batch_on_two_workers_is_byte_identical_to_generate(tmp_path, monkeypatc
             assert (out / name).read_bytes() == (reference / name).read_bytes(), name
             assert sidecar_path(out / name).read_bytes() == sidecar_path(reference / name).read_bytes(), name
             compared += 1
-    assert compared == 8
+    assert compared == 10
+    modes = {json.loads(sidecar_path(out / f"{name}-seed{seed}.{fmt}").read_text())["plan"]["mode"]
+             for name, seed, fmt in (("flat-frames", 4, "npy"), ("bracket-k4-frames", 5, "flac"))}
+    assert modes == {"overlap-add"}
 
     # summary rows: complete, in plan order, digests and statistics from the files themselves
     rows = summary["results"]
     assert [(r["job"], r["seed"]) for r in rows] == [(j.name, s) for j in plan.jobs for s in j.seeds]
-    assert summary["counts"] == {"drives": 8, "made": 8, "verified_only": 0, "done_earlier": 0, "passed": 8,
+    assert summary["counts"] == {"drives": 10, "made": 10, "verified_only": 0, "done_earlier": 0, "passed": 10,
                                  "failed": 0, "errors": 0}
     for row in rows:
         for key in ("job", "seed", "file", "sha256", "pass", "grms_error_percent", "worst_db", "kurtosis",
@@ -216,7 +237,7 @@ def test_batch_on_two_workers_is_byte_identical_to_generate(tmp_path, monkeypatc
     captured = capsys.readouterr()
     assert status == 0, captured.err
     again = json.loads(captured.out)
-    assert [r["status"] for r in again["results"]] == ["verified"] + ["done earlier"] * 7
+    assert [r["status"] for r in again["results"]] == ["verified"] + ["done earlier"] * 9
     assert [r["sha256"] for r in again["results"]] == [r["sha256"] for r in rows]
     after = drive.stat()
     assert (after.st_ino, after.st_mtime_ns) == (before.st_ino, before.st_mtime_ns)
@@ -353,3 +374,17 @@ def test_readme_plan_example_is_a_valid_plan(tmp_path):
     prepared = batches.prepare_batch(plan, tmp_path / "out")  # every profile read, every drive planned
     assert [task.drive_name for task in prepared.tasks][:2] == ["conveyor-m6-seed1.flac", "conveyor-m6-seed2.flac"]
     assert len(prepared.tasks) == 7 and not prepared.done
+
+
+def test_peaks_monte_carlo_on_two_workers_gives_the_numbers_of_one(capsys):
+    argv = ["peaks", "bench-flat", "--duration", "2", "--rate", "5120", "--records", "6", "--kurtosis", "5",
+            "--seed", "3", "--json"]
+    assert main(argv) == 0
+    alone = json.loads(capsys.readouterr().out)
+    assert main(argv + ["--workers", "2"]) == 0
+    spread = json.loads(capsys.readouterr().out)
+    assert spread == alone  # every record from its own spawn key: the same figures, to the last bit
+    monte_carlo = [row["monte_carlo"] for row in alone["rows"]]
+    assert [m["records"] for m in monte_carlo] == [6, 6]
+    # the records are real: the non-Gaussian row's mean kurtosis is above the Gaussian's (3, Pearson)
+    assert monte_carlo[1]["kurtosis_mean"] > monte_carlo[0]["kurtosis_mean"] + 0.5
