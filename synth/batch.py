@@ -38,6 +38,9 @@ profile and plan; a drive whose sidecar records something else is refused
 being written and is made again.  Every file is written atomically, so a
 killed batch loses only the tasks in flight.
 
+The same engine makes the Monte-Carlo records of ``vibsynth peaks``
+(:class:`dask_mapper`, passed as ``mapper`` to :func:`vibsynth.peaks.peak_report`).
+
 Workers: tasks run on a :mod:`dask.distributed` client (a local cluster of
 one single-threaded worker process per core by default, or an existing
 scheduler).  With a remote scheduler the output folder (and nothing else:
@@ -177,11 +180,23 @@ class BatchJob:
     verify: dict = field(default_factory=dict)
 
     def stem(self, seed: int) -> str:
-        """File-name stem of one seed's outputs: ``NAME-seedS``."""
+        """File-name stem of one seed's outputs: ``NAME-seedS``.
+
+        Examples
+        --------
+        >>> BatchJob("lab", 1, "bench-flat", "bench-flat", 4.0, 5120.0, "npy", (3,)).stem(3)
+        'lab-seed3'
+        """
         return f"{self.name}-seed{int(seed)}"
 
     def definition(self) -> dict:
-        """Everything that decides this job's outputs, as plain data (the profile as named)."""
+        """Everything that decides this job's outputs, as plain data (the profile as named; seconds, Hz).
+
+        Examples
+        --------
+        >>> BatchJob("lab", 1, "bench-flat", "bench-flat", 4.0, 5120.0, "npy", (3,)).definition()["rate_hz"]
+        5120.0
+        """
         return {
             "name": self.name, "profile": self.profile, "duration_s": self.duration_s, "rate_hz": self.rate_hz,
             "format": self.file_format, "grms": self.grms, "level_db": self.level_db,
