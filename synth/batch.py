@@ -98,7 +98,7 @@ _DRIVE_KEYS = {
     "skewness": "number", "clip": "number",
 }
 _VERIFY_KEYS = {"tolerance_db": "tolerance", "grms_tolerance_percent": "positive", "min_fraction_within": "positive",
-                "verify_resolution_hz": "positive", "dof": "positive"}
+                "verify_resolution_hz": "positive", "dof": "positive", "figures": "bool"}
 _OTHER_KEYS = {"name": "text", "profile": "text", "duration_s": "positive", "rate_hz": "positive", "format": "text",
                "seeds": "seed-list", "seed_count": "count", "base_seed": "seed", "level_db": "number",
                "grms": "positive"}
@@ -163,7 +163,8 @@ class BatchJob:
         Further :class:`~vibsynth.jobs.DriveRequest` fields (``kurtosis``, ``clip``, ``ramp_s``, ...).
     verify : dict
         ``tolerance_db`` (low, high dB), ``grms_tolerance_percent`` (%),
-        ``min_fraction_within``, ``resolution_hz`` (Hz or None), ``dof`` (or None).
+        ``min_fraction_within``, ``resolution_hz`` (Hz or None), ``dof`` (or None),
+        ``figures`` (also write the figures and report.pdf into ``NAME-seedS.report/``).
     """
 
     name: str
@@ -376,6 +377,7 @@ def parse_plan(text: str, source: str = "<plan>", base_dir=None) -> BatchPlan:
             "min_fraction_within": values.get("min_fraction_within", 1.0),
             "resolution_hz": values.get("verify_resolution_hz"),
             "dof": values.get("dof"),
+            "figures": values.get("figures", False),
         }
         if not verify["grms_tolerance_percent"] < 100:
             raise InputError("`grms_tolerance_percent` must lie between 0 and 100", source, where)
@@ -442,6 +444,11 @@ class BatchTask:
     def verify_name(self) -> str:
         """Name of the per-drive verification file."""
         return self.drive_name.rsplit(".", 1)[0] + ".verify.json"
+
+    @property
+    def report_name(self) -> str | None:
+        """Name of the per-drive report folder (figures, report.pdf), or None when the job asks for none."""
+        return self.drive_name.rsplit(".", 1)[0] + ".report" if self.verify.get("figures") else None
 
 
 @dataclass(frozen=True)
@@ -515,6 +522,8 @@ def _done_row(task: BatchTask, folder: Path) -> dict | None:
         if batch["sidecar_sha256"] != _sha256(sidecar_path(folder / task.drive_name)):
             return None
         if (folder / task.drive_name).stat().st_size != batch["drive_bytes"]:
+            return None
+        if task.report_name is not None and not (folder / task.report_name / "report.pdf").exists():
             return None
         row = dict(batch["row"])
     except (OSError, ValueError, KeyError, TypeError):
@@ -722,7 +731,10 @@ def run_task(task: BatchTask) -> dict:
             "row": {key: row[key] for key in SUMMARY_COLUMNS if key != "status"},
             "warnings": messages,
         }
-        write_json_atomic(folder / task.verify_name, data)
+        if task.report_name is not None:  # figures and report.pdf (their own verify.json without the batch block)
+            report = {key: value for key, value in data.items() if key != "batch"}
+            drive_jobs.write_verify_report(result, drive, folder / task.report_name, task.drive_name, report)
+        write_json_atomic(folder / task.verify_name, data)  # last: it marks the task finished
     except Exception as error:  # reported in the row: one bad task does not stop the batch
         text = error.one_line() if isinstance(error, InputError) else f"{type(error).__name__}: {error}"
         row.update(status="error", error=" ".join(text.split()), **{"pass": False})

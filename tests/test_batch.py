@@ -57,6 +57,7 @@ PLAN = textwrap.dedent("""\
     profile = "profiles/bracket.csv"
     format = "flac"
     level_db = -6
+    figures = true                 # figures and report.pdf beside the verify.json
     seeds = [3]
 
     [[jobs]]
@@ -220,6 +221,11 @@ def test_batch_on_two_workers_is_byte_identical_to_generate(tmp_path, monkeypatc
             x = np.load(out / row["file"])
             assert row["kurtosis"] == pytest.approx(scipy.stats.kurtosis(x, fisher=False), rel=1e-9)
             assert row["crest_factor"] == pytest.approx(np.max(np.abs(x)) / np.sqrt(np.mean(x**2)), rel=1e-9)
+    report = out / "bracket-m6-seed3.report"
+    assert (report / "report.pdf").read_bytes()[:5] == b"%PDF-"  # PDF magic number (ISO 32000)
+    assert (report / "asd.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"  # PNG signature (RFC 2083)
+    assert json.loads((report / "verify.json").read_text())["pass"] is True
+    assert not (out / "flat-seed1.report").exists()
     k5 = [r["kurtosis"] for r in rows if r["job"] == "bracket-k5"]
     assert len(k5) == 2 and all(abs(k - 4.5) < 0.5 for k in k5)  # passed the verifier's +-10 % kurtosis check
     with open(out / "summary.csv", newline="") as handle:
