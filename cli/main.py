@@ -126,12 +126,12 @@ def cli(ctx, quiet, verbose):
 
 def _register() -> None:
     """Add the commands in the order a user meets them (the main job first)."""
-    from vibsynth.cli import generate_cmd, info_cmd, peaks_cmd, run_cmd, verify_cmd
+    from vibsynth.cli import batch_cmd, generate_cmd, info_cmd, peaks_cmd, run_cmd, verify_cmd
     from vibsynth.cli import equivalent_cmd, fit_cmd, response_cmd, severity_cmd
 
     for command in (run_cmd.run, info_cmd.info, generate_cmd.generate, verify_cmd.verify, peaks_cmd.peaks,
                     response_cmd.response, severity_cmd.severity, equivalent_cmd.equivalent, fit_cmd.fit,
-                    info_cmd.presets):
+                    batch_cmd.batch, info_cmd.presets):
         cli.add_command(command)
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import json
 
 import click
@@ -112,10 +113,15 @@ def format_report(report) -> str:
 @options.amplitude.but(help="Line amplitudes of the Monte-Carlo records, as for `vibsynth generate`.")
 @options.grms
 @options.level_db
+@click.option("--workers", type=click.IntRange(min=1), default=None, metavar="N",
+              help="Make the Monte-Carlo records on a local Dask cluster of N worker processes (the numbers are the "
+                   "same as in one process). Needs pip install 'vibsynth[cluster]'.")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="Make the Monte-Carlo records on a running Dask scheduler (tcp://HOST:PORT).")
 @options.json_output
 @options.quiet.but(help="No table and no progress bar (warnings and errors still show; --json still prints).")
-def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, amplitude, grms, level_db, as_json,
-          command_quiet):
+def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, amplitude, grms, level_db, workers,
+          scheduler, as_json, command_quiet):
     """How high will the peaks go? Largest peak, exceedances and crest factor of PROFILE's drive.
 
     For a drive of --duration seconds: the expected largest |x| with its
@@ -156,9 +162,18 @@ def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, ampl
              f"{per_record / 1e6:.3g} million); this can take many minutes; lower --records or --rate "
              f"(at least {RATE_MARGIN_FACTOR:g} x {target.frequency_max_hz:g} Hz) to shorten it")
     show = is_interactive_stderr() and not as_json and not quiet and total > 0
-    with Progress(show, total, "Monte-Carlo") as progress:
-        report = peak_stats.peak_report(target, duration, rate_hz, transform=transform, records=records, seed=seed,
-                                        amplitude=amplitude, progress=progress)
+    with contextlib.ExitStack() as stack:
+        mapper = None
+        if (workers is not None or scheduler) and records:
+            from vibsynth import batch as batches
+
+            client = stack.enter_context(batches.dask_client(scheduler, workers))
+            mapper = batches.dask_mapper(client, max(1, records // (4 * batches.worker_count(client))))
+            note(f"Monte-Carlo on Dask, {batches.worker_count(client)} workers, {mapper.block_records} record(s) "
+                 "per task")
+        with Progress(show, total, "Monte-Carlo") as progress:
+            report = peak_stats.peak_report(target, duration, rate_hz, transform=transform, records=records,
+                                            seed=seed, amplitude=amplitude, progress=progress, mapper=mapper)
     for message in report.warnings:
         warn(message)
     if as_json:

@@ -65,6 +65,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -396,11 +397,44 @@ class MonteCarloPeaks:
         }
 
 
-def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, design=None) -> MonteCarloPeaks:
+def _record_statistics(plan, entropy, index: int, thresholds, step=None) -> tuple:
+    """Peak, power sums and exceedance counts of record ``index`` (spawn key ``(index,)``)."""
+    record_seed = np.random.SeedSequence(entropy, spawn_key=(index,))
+    synthesizer = Synthesizer(plan, record_seed)
+    counts = np.zeros(len(thresholds), dtype=np.int64)
+    peak, s1, s2, s3, s4, n = 0.0, 0.0, 0.0, 0.0, 0.0, 0
+    for chunk in synthesizer.iter_chunks(_CHUNK_SAMPLES):
+        x = chunk[:, 0]
+        magnitude = np.abs(x)
+        peak = max(peak, float(np.max(magnitude)))
+        for position, threshold in enumerate(thresholds):
+            counts[position] += int(np.count_nonzero(magnitude > threshold))
+        square = x * x
+        s1 += float(np.sum(x))
+        s2 += float(np.sum(square))
+        # numpy's pairwise sums, not BLAS dot products: the figures must not depend on the BLAS
+        # library's thread count (Dask workers run BLAS single-threaded)
+        s3 += float(np.sum(square * x))
+        s4 += float(np.sum(square * square))
+        n += x.size
+        if step is not None:
+            step(x.size)
+    return peak, s1, s2, s3, s4, n, counts
+
+
+def _record_block(plan, entropy, thresholds, indices) -> list:
+    """:func:`_record_statistics` of several records (one task of a parallel Monte-Carlo)."""
+    return [_record_statistics(plan, entropy, index, thresholds) for index in indices]
+
+
+def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, design=None,
+                      mapper=None) -> MonteCarloPeaks:
     """Synthesize N records of a plan and count their peaks and exceedances.
 
     Record ``i`` is made from the seed sequence ``SeedSequence(seed, spawn_key=(i,))``
     by :class:`vibsynth.generate.pipeline.Synthesizer`, exactly as a drive file is.
+    Each record's figures depend only on ``i``, so the records may be made
+    anywhere (``mapper``) with the same result, number for number.
 
     Parameters
     ----------
@@ -414,13 +448,27 @@ def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, des
     rms_g : float
         The drive's RMS (target), g: the unit of the k-sigma levels.
     progress : callable, optional
-        Called with a sample count after each chunk.
+        Called with a sample count after each chunk (after each block of records with ``mapper``).
     design : NonGaussianDesign, optional
         The non-Gaussian design that goes with ``plan`` (unused: the plan carries its transform).
+    mapper : callable, optional
+        ``mapper(function, blocks)``: the results of ``function`` over the blocks
+        of record indices, in order (e.g. :func:`vibsynth.batch.dask_mapper`);
+        default: one record after another in this process.
 
     Returns
     -------
     MonteCarloPeaks
+
+    Examples
+    --------
+    >>> from vibsynth.generate.plan import make_plan
+    >>> from vibsynth.profile.asd import AsdProfile
+    >>> plan = make_plan(AsdProfile([20, 500], [0.01, 0.01], name="flat"), 1.0, 2048.0)
+    >>> in_turn = monte_carlo_peaks(plan, 3, 1, 2.2)
+    >>> mapped = monte_carlo_peaks(plan, 3, 1, 2.2, mapper=lambda f, blocks: map(f, blocks))
+    >>> bool((in_turn.largest_peak_sigma == mapped.largest_peak_sigma).all())
+    True
 
     References
     ----------
@@ -431,26 +479,24 @@ def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, des
     entropy = seed_entropy(root_seed_sequence(seed))
     step = progress if progress is not None else (lambda samples: None)
     thresholds = np.asarray(K_SIGMA_LEVELS) * float(rms_g) * (1.0 + _LEVEL_SLACK)
+    if mapper is None:
+        results = (_record_statistics(plan, entropy, index, thresholds, step) for index in range(int(records)))
+    else:
+        size = max(1, int(getattr(mapper, "block_records", 1)))
+        blocks = [range(start, min(start + size, int(records))) for start in range(0, int(records), size)]
+
+        def mapped():
+            for block in mapper(functools.partial(_record_block, plan, entropy, thresholds), blocks):
+                for result in block:
+                    step(result[5])
+                    yield result
+
+        results = mapped()
     peaks, crests, rms, skews, kurts = [], [], [], [], []
     counts = np.zeros(len(K_SIGMA_LEVELS), dtype=np.int64)
     total = 0
-    for index in range(int(records)):
-        record_seed = np.random.SeedSequence(entropy, spawn_key=(index,))
-        synthesizer = Synthesizer(plan, record_seed)
-        peak, s1, s2, s3, s4, n = 0.0, 0.0, 0.0, 0.0, 0.0, 0
-        for chunk in synthesizer.iter_chunks(_CHUNK_SAMPLES):
-            x = chunk[:, 0]
-            magnitude = np.abs(x)
-            peak = max(peak, float(np.max(magnitude)))
-            for position, threshold in enumerate(thresholds):
-                counts[position] += int(np.count_nonzero(magnitude > threshold))
-            square = x * x
-            s1 += float(np.sum(x))
-            s2 += float(np.sum(square))
-            s3 += float(np.dot(square, x))
-            s4 += float(np.dot(square, square))
-            n += x.size
-            step(x.size)
+    for peak, s1, s2, s3, s4, n, record_counts in results:
+        counts += record_counts
         mean = s1 / n
         variance = s2 / n - mean**2
         third = s3 / n - 3 * mean * s2 / n + 2 * mean**3
@@ -604,7 +650,7 @@ class PeakReport:
 
 def peak_report(profile: AsdProfile, duration_s: float, rate_hz: float | None = None, *, transform=None,
                 records: int = DEFAULT_RECORDS, seed=0, amplitude: str = "fixed", progress=None,
-                memory_budget_bytes: int | None = None) -> PeakReport:
+                memory_budget_bytes: int | None = None, mapper=None) -> PeakReport:
     """Theory and Monte-Carlo of the largest peak, exceedances and crest factor of a profile's drive.
 
     Parameters
@@ -628,6 +674,9 @@ def peak_report(profile: AsdProfile, duration_s: float, rate_hz: float | None = 
         Called with a sample count after each synthesized chunk.
     memory_budget_bytes : int, optional
         Working memory for one periodic record (default the generator's).
+    mapper : callable, optional
+        Where the Monte-Carlo records are made (see :func:`monte_carlo_peaks`);
+        the numbers are the same wherever.
 
     Returns
     -------
@@ -664,7 +713,8 @@ def peak_report(profile: AsdProfile, duration_s: float, rate_hz: float | None = 
     for label, each, each_transform, each_design in plans:
         theory = peak_theory_row(profile, each.line_spectrum, each.resolution_hz, rate, each.duration_s,
                                  each_transform, label)
-        mc = monte_carlo_peaks(each, records, seed_value, profile.grms, progress, each_design) if records else None
+        mc = (monte_carlo_peaks(each, records, seed_value, profile.grms, progress, each_design, mapper)
+              if records else None)
         rows.append(PeakRow(theory, mc, rate))
     return PeakReport(
         profile=profile,
