@@ -69,7 +69,13 @@ clip_option = options.clip
               help="Write one periodic record that repeats seamlessly (for playback loops; no ramps).")
 @click.option("--quantities", type=types.QuantityList(), default="acceleration", show_default=True, metavar="LIST",
               help="Columns for .csv/.npy: acceleration (g), velocity (m/s), displacement (m), comma separated "
-                   "(accel,velocity,displacement), integrated in the frequency domain from the same spectrum.")
+                   "(accel,velocity,displacement), integrated in the frequency domain from the same spectrum. "
+                   "With velocity or displacement the base motion starts and ends at rest (see --rest-taper).")
+@click.option("--rest-taper", "rest_taper_s", type=types.FiniteFloatRange(min=0), default=None, metavar="S",
+              help="With velocity/displacement columns: taper the displacement over S seconds at each end and "
+                   "differentiate, so all three columns are 0 at the first and last sample and still exact "
+                   "derivatives of one another (default: 4 periods of the lowest frequency; 0: off). A --ramp "
+                   "given with these columns is this taper.")
 @click.option("--subtype", type=click.Choice(["float", "pcm24", "pcm16"]), default=None,
               help="Sample format: .wav float (default), pcm24 or pcm16; .flac pcm24 (default) or pcm16.")
 @click.option("--full-scale", "full_scale_g", type=types.positive(), default=None, metavar="G",
@@ -87,8 +93,8 @@ clip_option = options.clip
                               "JSON lines ({\"event\": \"plan\"|\"progress\", ...}).")
 @options.quiet
 def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms, level_db,
-             kurtosis, skewness, clip, resolution, loop, quantities, subtype, full_scale_g, memory_budget_mb, dry_run,
-             inch, as_json, command_quiet):
+             kurtosis, skewness, clip, resolution, loop, quantities, rest_taper_s, subtype, full_scale_g,
+             memory_budget_mb, dry_run, inch, as_json, command_quiet):
     """Write a drive time history whose spectrum is PROFILE's: Gaussian, or with a kurtosis, skewness or clip level.
 
     Random phases on an inverse-FFT frequency grid: one periodic record when it
@@ -150,6 +156,7 @@ def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_li
         kurtosis=kurtosis,
         skewness=skewness,
         clip=clip,
+        rest_taper_s=rest_taper_s,
     )
     if dry_run:  # plan even when it will not fit, to say so
         prepared = drive_job.prepare_drive(target, request, refuse_when_full=False)

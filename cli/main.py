@@ -44,6 +44,7 @@ OPTION_NAMES = {
     "quantities": "--quantities",
     "ramp": "--ramp",
     "ramp_s": "--ramp",
+    "rest_taper": "--rest-taper",
     "rate": "--rate",
     "rate_hz": "--rate",
     "records": "--records",

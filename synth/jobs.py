@@ -128,6 +128,9 @@ class DriveRequest:
     workers : int or None
         Threads that make overlap-add frames (None: :func:`default_workers`).
         The samples are the same whatever the number, so it is not recorded.
+    rest_taper_s : float or None
+        Velocity/displacement columns: displacement taper at each end, s, that
+        brings the base motion to rest (None: the default; 0: none).
     """
 
     output: str
@@ -150,6 +153,7 @@ class DriveRequest:
     skewness: float | None = None
     clip: float | None = None
     workers: int | None = None
+    rest_taper_s: float | None = None
 
 
 @dataclass(frozen=True)
@@ -249,6 +253,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         quantities=names,
         memory_budget_bytes=budget_bytes,
         transform=transform,
+        rest_taper_s=request.rest_taper_s,
     )
     drivefile.check_drive_request(
         request.output, rate_hz=plan.rate_hz, samples=plan.total_samples, quantities=plan.quantities, subtype=subtype,
@@ -297,8 +302,9 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         )
     sidecar = Sidecar(
         seed=seed,
-        ramp_in_s=plan.ramp_in_samples / plan.rate_hz,
-        ramp_out_s=plan.ramp_out_samples / plan.rate_hz,
+        # a rest taper is the fade of a velocity/displacement record: verification judges the part between
+        ramp_in_s=(plan.ramp_in_samples or plan.rest_taper_samples) / plan.rate_hz,
+        ramp_out_s=(plan.ramp_out_samples or plan.rest_taper_samples) / plan.rate_hz,
         options=options,
         plan={
             "mode": plan.mode,
@@ -307,6 +313,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
             "grms_lines_g": grms_lines,
             "seed_derivation": seed_derivation,
             "spill_highpass": plan.spill_highpass.to_dict() if plan.spill_highpass is not None and design is None else None,
+            "rest_taper_s": plan.rest_taper_samples / plan.rate_hz,
         },
         profile=profile_block(profile, request.profile_source),
         transform=design.transform_block() if design is not None else None,

@@ -24,7 +24,7 @@ import scipy.stats
 
 from vibsynth.errors import InputError, OutOfRangeError, VibsynthWarning
 from vibsynth.generate.design import nongaussian_plan
-from vibsynth.generate.highpass import SpillHighpass
+from vibsynth.generate.highpass import SpillHighpass, smooth_bound_gain
 from vibsynth.generate.pipeline import Synthesizer
 from vibsynth.generate.plan import plan_synthesis
 from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
@@ -323,7 +323,8 @@ def test_library_errors_name_parameters_not_options():
 
 @pytest.mark.parametrize("options", [dict(kurtosis=6.0), dict(clip=2.5)])
 def test_overlap_add_pipeline_is_transform_then_fir_then_clip_then_scale(options):
-    """Output sample n = sigma_T clip(y[n + D] - (h * y)[n + D]) for y = g(u), u the plain Gaussian stream.
+    """Output sample n = sigma_T y1[n + D] for y1 = y[n + D] - (h * y)[n + D], y = g(u), u the plain Gaussian stream;
+    a clipped drive then goes through clip, FIR once more, and the smooth bound gain (each a further D later).
 
     Reference: scipy.signal.fftconvolve (linear convolution) on the transformed stream, independent of
     the block filtering inside the pipeline; the stages in the order of the one pipeline.
@@ -333,15 +334,25 @@ def test_overlap_add_pipeline_is_transform_then_fir_then_clip_then_scale(options
     highpass = plan.spill_highpass
     d = highpass.half_length
     n = plan.total_samples
+    limit = plan.transform.peak_limit
+    stages = 1 if limit is None else 3
     # the unit-variance Gaussian stream of the same lines and seed: no transform, no filter, scale 1
     stream_plan = dataclasses.replace(plan, transform=None, spill_highpass=None, output_scale=1.0,
-                                      total_samples=n + 2 * d)
+                                      total_samples=n + 2 * d * stages)
     u = Synthesizer(stream_plan, 5).samples()[:, 0]
     y = plan.transform.apply(u)
     taps = highpass.lowpass_taps()
-    expected = y[d : d + n] - scipy.signal.fftconvolve(y[: n + 2 * d], taps, mode="valid")
-    if plan.transform.peak_limit is not None:
-        expected = np.clip(expected, -plan.transform.peak_limit, plan.transform.peak_limit)
+
+    def fir(x):
+        return x[d : x.size - d] - scipy.signal.fftconvolve(x, taps, mode="valid")
+
+    expected = fir(y)
+    if limit is not None:
+        expected = fir(np.clip(expected, -limit, limit))
+        synthesizer = Synthesizer(plan, 5)
+        w = synthesizer._bound_half_width
+        expected = expected[d : expected.size - d] * smooth_bound_gain(expected, limit, w, d, expected.size - d)
+        expected = np.clip(expected, -limit, limit)
     expected *= GENTLE.grms
     out = Synthesizer(plan, 5, workers=2).samples()[:, 0]
     np.testing.assert_allclose(out, expected, rtol=0, atol=1e-12 * np.max(np.abs(expected)))

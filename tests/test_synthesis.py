@@ -212,8 +212,9 @@ def test_overlap_add_is_the_windowed_sum_of_independent_frames():
 
 # ---------------------------------------------------- velocity/displacement
 def test_velocity_and_displacement_integrate_exactly_and_match_closed_form():
+    # the columns as integrated (no rest taper; the tapered ones: tests/test_rest_taper.py)
     columns = generate_samples(
-        BRACKET, 120.0, RATE_HZ, seed=3, quantities=("acceleration", "velocity", "displacement")
+        BRACKET, 120.0, RATE_HZ, seed=3, quantities=("acceleration", "velocity", "displacement"), rest_taper_s=0.0
     )
     acceleration, velocity, displacement = columns.T
     n = acceleration.size

@@ -200,6 +200,60 @@ def sine_window(frame_length: int) -> np.ndarray:
     return np.sin(np.pi * (n + 0.5) / frame_length)
 
 
+def rest_taper(length_samples: int, rate_hz: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Displacement taper ``w`` at the start of a record and its time derivatives ``w'`` (1/s) and ``w''`` (1/s^2).
+
+    ``w(t) = s(t / T)`` with ``s(u) = 10 u^3 - 15 u^4 + 6 u^5`` (the quintic
+    that rises from 0 to 1 with zero first and second derivatives at both
+    ends), ``T`` = ``length_samples / rate_hz`` and ``t = n / rate_hz``,
+    ``n = 0 .. R-1``.  Base motion ``x`` multiplied by ``w`` starts at rest:
+    ``w x``, ``(w x)' = w v + w' x`` and ``(w x)'' = w a + 2 w' v + w'' x`` are
+    all 0 at ``t = 0`` and are exact derivatives of one another; reversed (and
+    ``w'`` negated) it brings the end to rest.
+
+    This is a displacement taper with analytic differentiation, the principle
+    of the baseline corrections used for strong-motion records, which correct
+    the displacement (not the acceleration) so that the record begins and
+    ends at rest and the three traces stay consistent (Chiu 1997; Boore 2001).
+
+    Parameters
+    ----------
+    length_samples : int
+        R, samples (>= 2).
+    rate_hz : float
+        Sample rate, Hz.
+
+    Returns
+    -------
+    (numpy.ndarray, numpy.ndarray, numpy.ndarray), each shape (R,)
+        ``w`` (dimensionless), ``w'`` (1/s), ``w''`` (1/s^2).
+
+    Examples
+    --------
+    >>> w, dw, ddw = rest_taper(5, 4.0)
+    >>> [float(v) for v in w]
+    [0.0, 0.103515625, 0.5, 0.896484375, 1.0]
+    >>> float(dw[0]), float(ddw[0])
+    (0.0, 0.0)
+
+    References
+    ----------
+    Chiu, H.-C., "Stable baseline correction of digital strong-motion data",
+    Bull. Seism. Soc. Am. 87(4), 1997; Boore, D. M., "Effect of baseline
+    corrections on displacements and response spectra for several recordings
+    of the 1999 Chi-Chi, Taiwan, earthquake", Bull. Seism. Soc. Am. 91(5),
+    2001 (from memory: baseline correction of the displacement); the quintic
+    taper: common practice, no source.
+    """
+    r = int(length_samples)
+    duration = (r - 1) / float(rate_hz)
+    u = np.arange(r, dtype=float) / (r - 1)
+    w = u**3 * (10.0 + u * (-15.0 + 6.0 * u))
+    dw = 30.0 * u**2 * (1.0 - u) ** 2 / duration
+    ddw = 60.0 * u * (1.0 - u) * (1.0 - 2.0 * u) / duration**2
+    return w, dw, ddw
+
+
 def raised_cosine_ramp(length_samples: int) -> np.ndarray:
     """Fade-in factors ``0.5 (1 - cos(pi n / R))``, ``n = 0 .. R-1``: 0 at the first sample, rising to 1.
 

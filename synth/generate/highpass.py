@@ -233,7 +233,8 @@ class SpillHighpass:
                 f"(unit sum: exactly 0 at 0 Hz), at least {HIGHPASS_ATTENUATION_DB:g} dB below the stop edge"
             ),
             "applied": "after overlap-add (and after the transform of a non-Gaussian drive), before the final "
-            "scaling (a clipped drive is clipped again after it)",
+            "scaling (a clipped drive is then clipped and high-passed once more, and multiplied by a smooth gain that "
+            "brings each remaining sample above the bound exactly to it)",
         }
 
 
@@ -408,3 +409,58 @@ class PartitionedHighpass:
                     lowpass = scipy.fft.irfft(accumulated, n=2 * size, overwrite_x=True)
                     yield kept[0] - lowpass[size:]
             previous = current
+
+
+def smooth_bound_gain(z: np.ndarray, limit: float, half_width: int, lo: int, hi: int) -> np.ndarray:
+    """Gain (dimensionless, at most 1) for samples ``[lo, hi)`` of ``z`` that brings them within +/-limit smoothly.
+
+    Every sample ``n_i`` of ``z`` above the bound (ratio ``rho_i = limit / |z[n_i]|
+    < 1``) contributes the factor ``1 - (1 - rho_i) hann((n - n_i) / W)``, a Hann
+    dip of half-width W = ``half_width`` samples that reaches ``rho_i`` at
+    ``n_i``; the gain is their product.  So ``|gain[n_i] z[n_i]| <= limit`` at every
+    such sample, while the gain varies no faster than a Hann window of 2W
+    samples: multiplying a record by it moves power by at most about 2/W cycles
+    per sample (the main lobe), far less than the band's lowest frequency, so
+    nothing reaches 0 Hz the way a hard clip's corners do.  A sample within
+    ``[lo, hi)`` is affected by bound crossings up to W samples outside it,
+    which ``z`` must therefore hold.
+
+    Parameters
+    ----------
+    z : numpy.ndarray, shape (n,)
+        Samples (any unit).
+    limit : float
+        Bound, same unit as ``z``.
+    half_width : int
+        W, samples (>= 1).
+    lo, hi : int
+        Range of the returned gain, ``0 <= lo - W`` and ``hi + W <= n`` for an exact result.
+
+    Returns
+    -------
+    numpy.ndarray, shape (hi - lo,)
+
+    Examples
+    --------
+    >>> z = np.zeros(64); z[32] = 2.0
+    >>> gain = smooth_bound_gain(z, 1.0, 8, 16, 48)
+    >>> float(gain[16]), float(gain[0]), float(gain[12])
+    (0.5, 1.0, 0.75)
+
+    References
+    ----------
+    Harris, F. J., "On the use of windows for harmonic analysis with the discrete
+    Fourier transform", Proc. IEEE 66(1), 1978 (the Hann window's spectrum).
+    """
+    gain = np.ones(hi - lo)
+    w = int(half_width)
+    over = np.flatnonzero(np.abs(z[max(lo - w + 1, 0) : min(hi + w - 1, z.size)]) > limit) + max(lo - w + 1, 0)
+    if over.size == 0:
+        return gain
+    offsets = np.arange(-w + 1, w)
+    dip = 0.5 + 0.5 * np.cos(np.pi * offsets / w)
+    for n in over:
+        depth = 1.0 - limit / abs(float(z[n]))
+        a, b = max(n - w + 1, lo), min(n + w, hi)
+        gain[a - lo : b - lo] *= 1.0 - depth * dip[a - n + w - 1 : b - n + w - 1]
+    return gain

@@ -210,6 +210,10 @@ class SynthesisPlan:
         velocity and displacement need ``periodic`` mode and no transform.
     ramp_in_samples, ramp_out_samples : int
         Raised-cosine fade-in/out lengths in samples.
+    rest_taper_samples : int
+        Velocity/displacement records: length (samples) of the displacement
+        taper at each end that brings all three columns to rest (0: none);
+        see :func:`vibsynth.generate.frames.rest_taper`.
     warnings : tuple of str
         Advisory messages found while planning (e.g. a thin anti-alias margin).
     spill_highpass : SpillHighpass or None
@@ -246,6 +250,7 @@ class SynthesisPlan:
     quantities: tuple = ("acceleration",)
     ramp_in_samples: int = 0
     ramp_out_samples: int = 0
+    rest_taper_samples: int = 0
     warnings: tuple = field(default=())
     spill_highpass: SpillHighpass | None = None
     memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES
@@ -292,6 +297,12 @@ class SynthesisPlan:
             raise InputError(
                 f"ramps of {ramp_in} + {ramp_out} samples do not fit a record of {total} samples", "ramp"
             )
+        taper = int(self.rest_taper_samples)
+        if taper and (len(quantities) == 1 or taper < 2 or 2 * taper > total):
+            raise InputError(
+                f"a rest taper of {taper} samples needs velocity/displacement columns and at least 2 samples, "
+                f"twice of it within the {total} samples", "rest_taper")
+        object.__setattr__(self, "rest_taper_samples", taper)
         scale = self.output_scale
         if scale is None:
             scale = math.sqrt(float(np.sum(spectrum)) * rate / frame)
@@ -505,6 +516,7 @@ def make_plan(
     transform: MemorylessTransform | None = None,
     output_scale: float | None = None,
     spill_highpass: bool = True,
+    rest_taper_s: float | None = None,
 ) -> SynthesisPlan:
     """Check the request against the profile and plan the record (warnings kept in ``plan.warnings`` only).
 
@@ -553,6 +565,12 @@ def make_plan(
         leakage does not reach 0 Hz (where double integration would turn it
         into displacement far beyond the profile's).  False gives the plain
         windowed sum of frames.
+    rest_taper_s : float, optional
+        Velocity/displacement columns: the displacement taper at each end, s,
+        that brings all three columns to rest (default
+        :func:`default_rest_taper_s`; 0: none, the columns then start where the
+        random phases put them).  A ramp given with these columns becomes the
+        taper (the acceleration is then not faded separately).  Not with a loop.
 
     Returns
     -------
@@ -638,12 +656,28 @@ def make_plan(
     ramp_out = _ramp_samples(ramp_out_s, rate, "ramp")
     if loop and (ramp_in or ramp_out):
         raise InputError("a looped record repeats seamlessly and cannot have ramps; drop the ramp or the loop", "ramp")
-    if len(names) > 1 and (ramp_in or ramp_out):
-        raise InputError(
-            "ramps apply to acceleration drives; with velocity/displacement columns a ramped record would no longer "
-            "integrate exactly; drop the ramp",
-            "ramp",
-        )
+    taper = 0
+    if len(names) > 1:
+        if ramp_in or ramp_out:  # with these columns the ramp is the taper: the columns stay exact derivatives
+            if rest_taper_s is not None and _ramp_samples(rest_taper_s, rate, "rest_taper") != max(ramp_in, ramp_out):
+                raise InputError("with velocity/displacement columns the ramp is the rest taper; give one of them",
+                                 "rest_taper")
+            taper, ramp_in, ramp_out = max(ramp_in, ramp_out), 0, 0
+        elif loop:
+            if rest_taper_s:
+                raise InputError("a looped record repeats seamlessly and cannot come to rest; drop the rest taper "
+                                 "or the loop", "rest_taper")
+        elif rest_taper_s is None:
+            taper = int(round(default_rest_taper_s(profile) * rate))
+        else:
+            taper = _ramp_samples(rest_taper_s, rate, "rest_taper")
+        if taper and (taper < 2 or 2 * taper > total):
+            raise InputError(
+                f"a rest taper of {taper / rate:g} s at each end must be at least 2 samples and fit the "
+                f"{total / rate:g} s record twice; give at most {total // 2 / rate:g} s", "rest_taper")
+    elif rest_taper_s:
+        raise InputError("a rest taper applies to velocity/displacement columns; add them or drop the taper",
+                         "rest_taper")
     if ramp_in + ramp_out > total:
         raise InputError(
             f"ramps of {ramp_in / rate:g} s + {ramp_out / rate:g} s are longer than the {total / rate:g} s record", "ramp"
@@ -714,6 +748,7 @@ def make_plan(
         quantities=names,
         ramp_in_samples=ramp_in,
         ramp_out_samples=ramp_out,
+        rest_taper_samples=taper,
         warnings=tuple(warnings),
         memory_budget_bytes=budget,
     )
@@ -729,6 +764,29 @@ def make_plan(
     elif spill_highpass and transformed:
         plan = dataclasses.replace(plan, spill_highpass=SpillHighpass.for_plan(plan, profile.frequency_min_hz))
     return plan
+
+
+#: Default rest taper: this many periods of the profile's lowest frequency at each end ...
+REST_TAPER_PERIODS = 4.0
+
+
+def default_rest_taper_s(profile: AsdProfile) -> float:
+    """Default length of the rest taper at each end, s: :data:`REST_TAPER_PERIODS` periods of the lowest frequency.
+
+    Long enough that the taper's own terms (``2 w' v + w'' x``, of order
+    ``v / T`` and ``x / T^2``) stay well below the acceleration of the band's
+    lowest frequency, short enough to leave most of a record untouched.
+
+    Examples
+    --------
+    >>> default_rest_taper_s(AsdProfile([20, 2000], [0.01, 0.01]))
+    0.2
+
+    References
+    ----------
+    Common practice, no source (a taper of a few periods of the lowest frequency of interest).
+    """
+    return REST_TAPER_PERIODS / profile.frequency_min_hz
 
 
 def _positive(value, what: str, unit: str) -> float:
@@ -809,6 +867,8 @@ __all__ = [
     "MODES",
     "QUANTITY_UNITS",
     "RATE_MARGIN_FACTOR",
+    "REST_TAPER_PERIODS",
+    "default_rest_taper_s",
     "SynthesisPlan",
     "choose_frame_length",
     "make_plan",
