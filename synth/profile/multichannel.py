@@ -150,7 +150,7 @@ class PsdViolation:
         return (
             f"the spectral density matrix is not positive semidefinite at {self.frequency_hz:.6g} Hz "
             f"(channels {', '.join(self.channels)}): smallest eigenvalue of the coherence matrix "
-            f"{self.smallest_eigenvalue:.4g} (must be >= 0; {self.lines} checked frequencies fail); lower the "
+            f"{self.smallest_eigenvalue:.4g} (must be >= 0; it fails at {self.lines} of the checked frequencies); lower the "
             "coherence of those pairs or make their phases consistent (phase_ab + phase_bc = phase_ac), or see "
             "'vibsynth info --repair'"
         )
@@ -419,6 +419,22 @@ class MultiChannelProfile:
         }
         return (MultiChannelProfile(self.channel_names, self.channels, self.pairs, self.name, self.description,
                                     self.source, repair=True), moved)
+
+    def scaled_db(self, level_db: float) -> "MultiChannelProfile":
+        """Every channel shifted by ``level_db`` decibels (coherence and phase unchanged).
+
+        Examples
+        --------
+        >>> flat = AsdProfile([20, 2000], [0.01, 0.01])
+        >>> float(MultiChannelProfile(("x", "y"), (flat, flat)).scaled_db(10.0).channels[1].asd_g2_per_hz[0])
+        0.1
+
+        References
+        ----------
+        Decibels of a power quantity: 10 log10 of the ASD ratio.
+        """
+        return MultiChannelProfile(self.channel_names, tuple(c.scaled_db(level_db) for c in self.channels), self.pairs,
+                                   self.name, self.description, self.source, self.repair)
 
     def summary(self) -> dict:
         """Per-channel figures (as :meth:`AsdProfile.summary`) and the pairs, as plain data."""
