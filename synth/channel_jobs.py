@@ -386,5 +386,92 @@ def write_channel_report(result: ChannelVerification, folder, title: str = "") -
     return paths
 
 
-__all__ = ["ChannelVerification", "channel_targets", "prepare_channel_drive", "verify_channel_drive",
-           "write_channel_report"]
+# ====================================================================== the run job
+@dataclass
+class ChannelRunResult:
+    """What a multi-channel run made: the files, the verification, every warning."""
+
+    folder: Path
+    drive_path: Path
+    prepared: object
+    written: dict
+    verification: ChannelVerification
+    files: tuple
+    warnings: tuple
+
+    @property
+    def passed(self) -> bool:
+        """True when every channel and every pair passed."""
+        return self.verification.passed
+
+
+def run_channels(profile, request, progress=None) -> ChannelRunResult:
+    """Generate a multi-channel drive, verify it, and write everything into one folder.
+
+    Writes ``drive.FORMAT`` and its sidecar, ``profile.toml`` (the profile,
+    self-contained), ``verify.json``, ``matrix.png`` and one ``asd-CHANNEL.png``
+    per channel.
+
+    Parameters
+    ----------
+    profile : MultiChannelProfile
+    request : vibsynth.jobs.RunRequest
+    progress : callable, optional
+        Called with a sample count after each chunk written.
+
+    Returns
+    -------
+    ChannelRunResult
+
+    Examples
+    --------
+    >>> run_channels.__name__
+    'run_channels'
+
+    References
+    ----------
+    See :func:`prepare_channel_drive` and :func:`verify_channel_drive`.
+    """
+    import dataclasses
+    import warnings
+
+    from vibsynth.errors import VibsynthWarning
+    from vibsynth.io.atomic import write_json_atomic
+    from vibsynth.jobs import _merge_warnings, drive_criteria, write_prepared_drive
+    from vibsynth.profile.multichannel import format_multichannel_toml
+
+    folder = Path(request.folder)
+    if folder.exists() and not folder.is_dir():
+        raise InputError("exists and is not a folder; give another output folder", str(folder))
+    drive_path = folder / f"drive.{drivefile.drive_format('drive.' + request.file_format)}"
+    created = not folder.exists()
+    folder.mkdir(parents=True, exist_ok=True)
+    collected: list = []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", VibsynthWarning)
+        try:
+            prepared = prepare_channel_drive(profile, dataclasses.replace(request.drive, output=str(drive_path)))
+        except BaseException:
+            if created and not any(folder.iterdir()):
+                folder.rmdir()
+            raise
+        collected = list(prepared.warnings)
+        written = write_prepared_drive(prepared, progress)
+        drive = drivefile.open_drive(drive_path)
+        criteria = drive_criteria(drive, request.tolerance_db, request.grms_tolerance_percent,
+                                  request.min_fraction_within)
+        verification = verify_channel_drive(drive, criteria, request.resolution_hz, request.dof)
+        (folder / "profile.toml").write_text(format_multichannel_toml(profile), encoding="utf-8")
+        figures = write_channel_report(verification, folder, f"{drive_path.name} ({profile.name})")
+    _merge_warnings(collected, caught)
+    if not verification.passed:
+        collected.append("the drive did NOT pass verification; see verify.json and matrix.png before using it")
+    write_json_atomic(folder / "verify.json", {"file": drive_path.name, **verification.to_dict(),
+                                               "warnings": list(collected)})
+    files = (drive_path.name, drivefile.sidecar_path(drive_path).name, "profile.toml", "verify.json",
+             *(Path(p).name for p in figures.values()))
+    return ChannelRunResult(folder, drive_path, prepared, written, verification, files, tuple(collected))
+
+
+__all__ = ["ChannelRunResult", "ChannelVerification", "channel_targets", "prepare_channel_drive", "run_channels",
+           "verify_channel_drive", "write_channel_report"]

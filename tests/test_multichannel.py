@@ -355,3 +355,19 @@ def test_the_invented_example_is_valid_and_labelled():
     assert "INVENTED" in text.splitlines()[0]
     profile = read_any_profile(EXAMPLE)
     assert profile.channel_names == ("x", "y", "z") and profile.check_psd() is None
+
+
+def test_run_writes_a_verified_multichannel_folder(tmp_path):
+    folder = tmp_path / "run"
+    status, out, err = _quiet_main(["run", EXAMPLE, "-o", folder, "--duration", 60, "--seed", 2, "--format", "npy",
+                                    "--json"])
+    assert status == 0, err
+    data = json.loads(out)
+    assert data["pass"] and {"drive.npy", "drive.npy.json", "profile.toml", "verify.json", "matrix.png"} <= set(
+        data["files"])
+    assert np.load(folder / "drive.npy").shape == (60 * 5120, 3)  # 2.56 x 2000 Hz = 5120 Hz default rate
+    # profile.toml is self-contained and reads back to the same channels and pairs
+    again = read_any_profile(folder / "profile.toml")
+    original = read_any_profile(EXAMPLE)
+    f = np.geomspace(20, 2000, 50)
+    np.testing.assert_allclose(again.matrix(f), original.matrix(f), rtol=1e-12)

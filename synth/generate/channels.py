@@ -109,14 +109,15 @@ def make_channel_plan(
     lines = np.arange(lo, hi)
     asd = np.array([c.line_spectrum(df, lines) for c in channels])  # (C, K), g^2/Hz per line
     frequencies = lines * df
-    violation = profile.check_psd(frequencies, asd)
+    coherence = profile.coherence_matrix(frequencies)
+    violation = profile.check_psd(frequencies, asd, coherence)
     if violation is not None:
         raise InputError(violation.message(), profile.source or profile.name, "pairs")
-    matrix = np.conj(profile.matrix(frequencies, asd)) * (df / 2.0)
-    factors, semidefinite = factor_matrices(matrix)
-    warnings = list(plan.warnings)
-    return dataclasses.replace(plan, channels=profile.channel_names, channel_factors=factors,
-                               warnings=tuple(warnings))
+    matrix = profile.matrix(frequencies, asd * (df / 2.0), coherence)
+    np.conj(matrix, out=matrix)
+    factors, _ = factor_matrices(matrix)
+    del matrix, coherence
+    return dataclasses.replace(plan, channels=profile.channel_names, channel_factors=factors)
 
 
 def draw_channel_lines(rng: np.random.Generator, plan: SynthesisPlan) -> np.ndarray:

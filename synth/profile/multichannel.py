@@ -289,7 +289,7 @@ class MultiChannelProfile:
             matrix = nearest_coherence_matrix(matrix)[0]
         return matrix
 
-    def matrix(self, frequency_hz, asd=None) -> np.ndarray:
+    def matrix(self, frequency_hz, asd=None, coherence=None) -> np.ndarray:
         """Spectral density matrices ``G_ab(f)`` (g^2/Hz), shape (K, C, C); ``G_ab = E[conj(A) B]``.
 
         Parameters
@@ -299,6 +299,9 @@ class MultiChannelProfile:
         asd : array_like, optional
             Channel ASDs at those frequencies, shape (C, K) (default: each
             channel's :meth:`AsdProfile.evaluate`).
+        coherence : numpy.ndarray, optional
+            :meth:`coherence_matrix` at those frequencies, if already computed
+            (it is scaled in place).
 
         Returns
         -------
@@ -316,7 +319,10 @@ class MultiChannelProfile:
         if asd is None:
             asd = np.array([c.evaluate(f) for c in self.channels])
         root = np.sqrt(np.asarray(asd, dtype=float)).T  # (K, C)
-        return self.coherence_matrix(f) * root[:, :, None] * root[:, None, :]
+        matrix = self.coherence_matrix(f) if coherence is None else coherence
+        matrix *= root[:, :, None]
+        matrix *= root[:, None, :]
+        return matrix
 
     def check_grid_hz(self) -> np.ndarray:
         """Frequencies :meth:`check_psd` examines: every breakpoint and a 2048-point log grid over the band (Hz)."""
@@ -324,7 +330,7 @@ class MultiChannelProfile:
         grid = np.geomspace(self.frequency_min_hz, self.frequency_max_hz, CHECK_GRID_POINTS)
         return np.unique(np.concatenate(points + [grid]))
 
-    def check_psd(self, frequency_hz=None, asd=None) -> PsdViolation | None:
+    def check_psd(self, frequency_hz=None, asd=None, coherence=None) -> PsdViolation | None:
         """The worst frequency where the matrix is not positive semidefinite, or None when it is everywhere.
 
         Only channels with a non-zero ASD at a frequency take part there (a
@@ -336,6 +342,8 @@ class MultiChannelProfile:
             Frequencies to check (default :meth:`check_grid_hz`).
         asd : array_like, optional
             Channel ASDs there, shape (C, K) (default from the channels).
+        coherence : numpy.ndarray, optional
+            :meth:`coherence_matrix` there, if already computed (not changed).
 
         Returns
         -------
@@ -359,8 +367,14 @@ class MultiChannelProfile:
         f = self.check_grid_hz() if frequency_hz is None else np.atleast_1d(np.asarray(frequency_hz, dtype=float))
         if asd is None:
             asd = np.array([c.evaluate(f) for c in self.channels])
-        matrix = _active_only(self.coherence_matrix(f), np.asarray(asd) > 0)
-        values, vectors = np.linalg.eigh(matrix)
+        matrix = _active_only(self.coherence_matrix(f) if coherence is None else coherence, np.asarray(asd) > 0)
+        # Lines whose square-root-free Cholesky (LDL^H) has every pivot clearly > 0 are positive
+        # definite; only the others need their eigenvalues.
+        _, pivots = _ldl(matrix)
+        doubtful = np.flatnonzero(np.min(pivots, axis=1) <= DEFINITE_FRACTION)
+        if doubtful.size == 0:
+            return None
+        values, vectors = np.linalg.eigh(matrix[doubtful])
         smallest = values[:, 0]
         bad = smallest < -PSD_TOLERANCE
         if not np.any(bad):
@@ -368,7 +382,7 @@ class MultiChannelProfile:
         worst = int(np.argmin(smallest))
         weight = np.abs(vectors[worst, :, 0]) ** 2
         involved = tuple(n for n, w in zip(self.channel_names, weight) if w >= 0.05)
-        return PsdViolation(float(f[worst]), involved, float(smallest[worst]), int(np.sum(bad)))
+        return PsdViolation(float(f[doubtful[worst]]), involved, float(smallest[worst]), int(np.sum(bad)))
 
     def repaired(self) -> tuple["MultiChannelProfile", dict]:
         """This profile generating from the nearest valid coherence matrices, and how far they moved.
@@ -470,9 +484,9 @@ class MultiChannelProfile:
 
 def _active_only(matrix: np.ndarray, active: np.ndarray) -> np.ndarray:
     """Coherence matrices with the rows/columns of inactive channels (``active`` (C, K) False) set to identity."""
-    matrix = matrix.copy()
     inactive = ~active.T  # (K, C)
     if np.any(inactive):
+        matrix = matrix.copy()
         mask = inactive[:, :, None] | inactive[:, None, :]
         matrix[mask] = 0.0
         count = matrix.shape[1]
@@ -521,6 +535,40 @@ def nearest_coherence_matrix(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray
     return fixed, distance
 
 
+def _ldl(matrix: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Square-root-free Cholesky ``M = L D L^H`` of many small Hermitian matrices at once, shape (K, C, C).
+
+    Vectorised over K (a loop over the C columns only).  Pivots are returned
+    relative to the largest diagonal entry of each matrix; a pivot at or below
+    zero stops its column (the entries below it are set to 0), so the result
+    is only a factor where every relative pivot is clearly positive.
+
+    Returns
+    -------
+    (numpy.ndarray, numpy.ndarray)
+        Unit lower-triangular L (K, C, C) and the relative pivots D / max(diag) (K, C).
+
+    References
+    ----------
+    Golub & Van Loan (2013), the LDL^T (here LDL^H) factorisation, section 4.1.
+    """
+    count = matrix.shape[1]
+    lower = np.zeros_like(matrix)
+    pivots = np.empty(matrix.shape[:2])
+    scale = np.max(np.real(np.einsum("kii->ki", matrix)), axis=1)
+    scale[scale <= 0] = 1.0
+    for j in range(count):
+        d = matrix[:, j, j].real - np.sum(np.abs(lower[:, j, :j]) ** 2 * pivots[:, :j], axis=1)
+        pivots[:, j] = d
+        lower[:, j, j] = 1.0
+        usable = d > DEFINITE_FRACTION * scale
+        inverse = np.where(usable, 1.0 / np.where(usable, d, 1.0), 0.0)
+        for i in range(j + 1, count):
+            v = matrix[:, i, j] - np.sum(lower[:, i, :j] * np.conj(lower[:, j, :j]) * pivots[:, :j], axis=1)
+            lower[:, i, j] = v * inverse
+    return lower, pivots / scale[:, None]
+
+
 def factor_matrices(matrix: np.ndarray) -> tuple[np.ndarray, int]:
     """Factors ``H`` with ``H H^H = M`` for Hermitian positive semidefinite matrices M, shape (K, C, C).
 
@@ -552,16 +600,16 @@ def factor_matrices(matrix: np.ndarray) -> tuple[np.ndarray, int]:
     domain method for the generation of partially coherent normal stationary time
     domain signals", Shock and Vibration 1(1), 1993.
     """
-    values, vectors = np.linalg.eigh(matrix)
-    top = np.maximum(values[:, -1], 0.0)
-    definite = values[:, 0] > DEFINITE_FRACTION * top
-    factors = np.zeros_like(matrix)
-    if np.any(definite):
-        factors[definite] = np.linalg.cholesky(matrix[definite])
-    rest = ~definite
-    if np.any(rest):
-        factors[rest] = vectors[rest] * np.sqrt(np.maximum(values[rest], 0.0))[:, None, :]
-    return factors, int(np.sum(rest))
+    # Cholesky as L sqrt(D) from the vectorised LDL^H; where a pivot is not clearly positive, eigen-decomposition
+    lower, pivots = _ldl(matrix)
+    scale = np.max(np.real(np.einsum("kii->ki", matrix)), axis=1)
+    rest = np.flatnonzero(np.min(pivots, axis=1) <= DEFINITE_FRACTION)
+    factors = lower
+    factors *= np.sqrt(np.maximum(pivots * scale[:, None], 0.0))[:, None, :]
+    if rest.size:
+        values, vectors = np.linalg.eigh(matrix[rest])
+        factors[rest] = vectors * np.sqrt(np.maximum(values, 0.0))[:, None, :]
+    return factors, int(rest.size)
 
 
 # ------------------------------------------------------------------ reading
@@ -741,6 +789,39 @@ def parse_multichannel_toml(data: dict, source: str = "<toml>", folder: str | os
     return MultiChannelProfile(tuple(names), tuple(profiles), tuple(pairs), name, description, source, repair)
 
 
+def format_multichannel_toml(profile: MultiChannelProfile) -> str:
+    """A multi-channel profile as self-contained TOML (every channel inline, every pair with its breakpoints).
+
+    Examples
+    --------
+    >>> flat = AsdProfile([20, 2000], [0.01, 0.01])
+    >>> text = format_multichannel_toml(MultiChannelProfile(("x", "y"), (flat, flat)))
+    >>> parse_any_toml(text).channel_names
+    ('x', 'y')
+
+    References
+    ----------
+    TOML v1.0.0 (toml.io).
+    """
+    from vibsynth.profile.files import _toml_string
+
+    lines = [f"name = {_toml_string(profile.name)}", f"description = {_toml_string(profile.description)}"]
+    if profile.repair:
+        lines.append("repair = true")
+    for name, channel in zip(profile.channel_names, profile.channels):
+        lines += ["", "[[channels]]", f"name = {_toml_string(name)}",
+                  f"# {channel.grms:.6g} g RMS, band {channel.frequency_min_hz:g}-{channel.frequency_max_hz:g} Hz"]
+        for frequency, asd in zip(channel.frequencies_hz, channel.asd_g2_per_hz):
+            lines += ["[[channels.breakpoints]]", f"frequency = {float(frequency)!r}", f"asd = {float(asd)!r}"]
+    for pair in profile.pairs:
+        names = (profile.channel_names[pair.first], profile.channel_names[pair.second])
+        lines += ["", "[[pairs]]", f"channels = [{_toml_string(names[0])}, {_toml_string(names[1])}]"]
+        for frequency, coherence, phase in zip(pair.frequencies_hz, pair.coherence, pair.phase_deg):
+            lines += ["[[pairs.breakpoints]]", f"frequency = {float(frequency)!r}",
+                      f"coherence = {float(coherence)!r}", f"phase_deg = {float(phase)!r}"]
+    return "\n".join(lines) + "\n"
+
+
 def read_any_profile(spec: str | os.PathLike):
     """Read a single-channel profile (:class:`AsdProfile`) or a multi-channel one (:class:`MultiChannelProfile`).
 
@@ -812,6 +893,7 @@ __all__ = [
     "MultiChannelProfile",
     "PsdViolation",
     "factor_matrices",
+    "format_multichannel_toml",
     "nearest_coherence_matrix",
     "parse_any_toml",
     "parse_multichannel_toml",
