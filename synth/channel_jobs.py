@@ -194,6 +194,14 @@ class ChannelVerification:
         The cross-spectral estimate (Hz; g^2/Hz, shape (K, C, C)).
     dof : float
         Welch degrees of freedom of the cross-spectral estimate.
+
+    Examples
+    --------
+    See :func:`verify_channel_drive`.
+
+    References
+    ----------
+    Bendat & Piersol (2010), section 9.2.3; Welch (1967).
     """
 
     channel_names: tuple
@@ -389,7 +397,16 @@ def write_channel_report(result: ChannelVerification, folder, title: str = "") -
 # ====================================================================== the run job
 @dataclass
 class ChannelRunResult:
-    """What a multi-channel run made: the files, the verification, every warning."""
+    """What a multi-channel run made: the files, the verification, every warning.
+
+    Examples
+    --------
+    See :func:`run_channels`.
+
+    References
+    ----------
+    See :func:`verify_channel_drive`.
+    """
 
     folder: Path
     drive_path: Path

@@ -371,3 +371,22 @@ def test_run_writes_a_verified_multichannel_folder(tmp_path):
     original = read_any_profile(EXAMPLE)
     f = np.geomspace(20, 2000, 50)
     np.testing.assert_allclose(again.matrix(f), original.matrix(f), rtol=1e-12)
+
+
+def test_docstring_examples_of_the_multichannel_modules_run():
+    import doctest
+    import importlib
+
+    for name in ("vibsynth.profile.multichannel", "vibsynth.generate.channels", "vibsynth.analysis.channels",
+                 "vibsynth.channel_jobs"):
+        result = doctest.testmod(importlib.import_module(name))
+        assert result.attempted > 0 and result.failed == 0, name
+
+
+def test_analysis_never_imports_the_generator():
+    import subprocess
+    import sys
+
+    code = ("import sys, vibsynth.analysis.channels, vibsynth.channel_jobs; "
+            "print(any(m.startswith(('vibsynth.generate', 'vibsynth.transforms')) for m in sys.modules))")
+    assert subprocess.run([sys.executable, "-c", code], capture_output=True, text=True).stdout.strip() == "False"

@@ -108,7 +108,16 @@ class CrossSpectralAccumulator:
         self._carry = np.zeros((0, self.channels))
 
     def update(self, chunk) -> None:
-        """Add the next samples, shape (m, C) (any m)."""
+        """Add the next samples, shape (m, C) (any m; the result does not depend on how the record is cut).
+
+        Examples
+        --------
+        See the class docstring.
+
+        References
+        ----------
+        Welch (1967), segment averaging.
+        """
         data = np.asarray(chunk, dtype=np.float64)
         if data.ndim == 1:
             data = data[:, None]
@@ -130,7 +139,16 @@ class CrossSpectralAccumulator:
         self._carry = data[count * step:].copy()
 
     def result(self) -> tuple[np.ndarray, np.ndarray, int, float]:
-        """Frequencies (Hz), the one-sided matrices ``G[k, a, b]`` (g^2/Hz), segments and Welch dof."""
+        """Frequencies (Hz), the one-sided matrices ``G[k, a, b]`` (g^2/Hz), segments and Welch dof.
+
+        Examples
+        --------
+        See the class docstring.
+
+        References
+        ----------
+        Welch (1967); density scaling ``1 / (rate_hz sum(w^2))``; :func:`vibsynth.analysis.welch.welch_dof`.
+        """
         if self.segments == 0:
             raise InputError(f"record has {self.samples} samples, fewer than one segment of {self.nperseg}",
                              location="nperseg")
@@ -186,7 +204,7 @@ def phase_sigma_deg(coherence, averages: float) -> np.ndarray:
     Examples
     --------
     >>> round(float(phase_sigma_deg(0.5, 100)), 3)
-    4.052
+    4.051
 
     References
     ----------
@@ -198,7 +216,19 @@ def phase_sigma_deg(coherence, averages: float) -> np.ndarray:
 
 @dataclass
 class PairCheck:
-    """One pair's coherence and phase against target (arrays over the estimate's lines)."""
+    """One pair's coherence and phase against target (arrays over the estimate's lines).
+
+    Built by :func:`compare_pairs`; ``passed`` when at least :data:`PAIR_MIN_FRACTION`
+    of the judged lines lie inside both the coherence and the phase band.
+
+    Examples
+    --------
+    See :func:`compare_pairs`.
+
+    References
+    ----------
+    Bendat & Piersol (2010), section 9.2.3.
+    """
 
     channels: tuple
     frequencies_hz: np.ndarray = field(repr=False)
@@ -240,7 +270,16 @@ class PairCheck:
         return bool(self.fraction_within >= PAIR_MIN_FRACTION)
 
     def to_dict(self) -> dict:
-        """Summary as plain data (units in the keys)."""
+        """Summary as plain data (units in the keys): fraction within, median and 95th-percentile errors.
+
+        Examples
+        --------
+        See :func:`compare_pairs` (``check.to_dict()["pass"]``).
+
+        References
+        ----------
+        RFC 8259 (JSON).
+        """
         judged = self.judged
         error = np.abs(self.coherence - self.target_coherence)[judged]
         phase = np.abs(self.phase_error_deg)[self.phase_judged]

@@ -128,17 +128,58 @@ class ChannelPair:
         return np.interp(x, np.log(self.frequencies_hz), values)
 
     def coherence_at(self, frequency_hz) -> np.ndarray:
-        """Ordinary coherence (0..1) at the given frequencies (Hz): log-frequency interpolation, constant beyond the ends."""
+        """Ordinary coherence (0..1) at the given frequencies (Hz): log-frequency interpolation, constant beyond the ends.
+
+        Examples
+        --------
+        See the class docstring.
+
+        References
+        ----------
+        Bendat & Piersol (2010), the coherence function.
+        """
         return self._interpolate(self.coherence, frequency_hz)
 
     def phase_deg_at(self, frequency_hz) -> np.ndarray:
-        """Phase of ``G_first,second`` (degrees) at the given frequencies (Hz), interpolated as the coherence."""
+        """Phase of ``G_first,second`` (degrees) at the given frequencies (Hz), interpolated as the coherence.
+
+        Examples
+        --------
+        >>> pair = ChannelPair(0, 1, np.array([10.0, 1000.0]), np.array([1.0, 0.0]), np.array([0.0, 90.0]))
+        >>> [round(float(v), 3) for v in pair.phase_deg_at([100.0])]
+        [45.0]
+
+        References
+        ----------
+        Bendat & Piersol (2010), phase of the cross-spectral density.
+        """
         return self._interpolate(self.phase_deg, frequency_hz)
 
 
 @dataclass(frozen=True)
 class PsdViolation:
-    """Where a spectral density matrix is not positive semidefinite (the worst line found)."""
+    """Where a spectral density matrix is not positive semidefinite (the worst line found).
+
+    Attributes
+    ----------
+    frequency_hz : float
+        Frequency of the most negative eigenvalue, Hz.
+    channels : tuple of str
+        Channels that carry that eigenvector (weight >= 5 %).
+    smallest_eigenvalue : float
+        Of the coherence matrix (unit diagonal), dimensionless.
+    lines : int
+        Number of checked frequencies that fail.
+
+    Examples
+    --------
+    >>> PsdViolation(100.0, ("x", "y"), -0.2, 3).message()[:60]
+    'the spectral density matrix is not positive semidefinite at '
+
+    References
+    ----------
+    Bendat & Piersol (2010): a spectral density matrix is Hermitian positive semidefinite.
+    """
 
     frequency_hz: float
     channels: tuple
@@ -146,7 +187,7 @@ class PsdViolation:
     lines: int
 
     def message(self) -> str:
-        """The one-line description used in errors."""
+        """The one-line description used in errors (see the class docstring for an example)."""
         return (
             f"the spectral density matrix is not positive semidefinite at {self.frequency_hz:.6g} Hz "
             f"(channels {', '.join(self.channels)}): smallest eigenvalue of the coherence matrix "
@@ -179,7 +220,7 @@ class MultiChannelProfile:
     >>> profile = MultiChannelProfile(("x", "y"), (flat, flat),
     ...     (ChannelPair(0, 1, np.array([1.0]), np.array([0.5]), np.array([90.0])),))
     >>> matrix = profile.matrix([100.0])[0]
-    >>> round(abs(matrix[0, 1]) ** 2 / (matrix[0, 0] * matrix[1, 1]).real, 6), round(float(np.angle(matrix[0, 1], deg=True)), 6)
+    >>> round(float(abs(matrix[0, 1]) ** 2 / (matrix[0, 0] * matrix[1, 1]).real), 6), round(float(np.angle(matrix[0, 1], deg=True)), 6)
     (0.5, 90.0)
 
     References
@@ -251,7 +292,18 @@ class MultiChannelProfile:
         return AsdProfile(points, values, name=self.name, description=self.description, source=self.source)
 
     def pair_of(self, first: int, second: int) -> ChannelPair | None:
-        """The specified pair of two channel indices (either order), or None."""
+        """The specified pair of two channel indices (either order), or None.
+
+        Examples
+        --------
+        >>> flat = AsdProfile([20, 2000], [0.01, 0.01])
+        >>> MultiChannelProfile(("x", "y"), (flat, flat)).pair_of(1, 0) is None
+        True
+
+        References
+        ----------
+        None (bookkeeping).
+        """
         for pair in self.pairs:
             if {pair.first, pair.second} == {first, second}:
                 return pair
@@ -325,7 +377,18 @@ class MultiChannelProfile:
         return matrix
 
     def check_grid_hz(self) -> np.ndarray:
-        """Frequencies :meth:`check_psd` examines: every breakpoint and a 2048-point log grid over the band (Hz)."""
+        """Frequencies :meth:`check_psd` examines: every breakpoint and a 2048-point log grid over the band (Hz).
+
+        Examples
+        --------
+        >>> flat = AsdProfile([20, 2000], [0.01, 0.01])
+        >>> MultiChannelProfile(("x", "y"), (flat, flat)).check_grid_hz().size
+        2048
+
+        References
+        ----------
+        None (a sampling of the band dense against the breakpoint spacing).
+        """
         points = [c.frequencies_hz for c in self.channels] + [p.frequencies_hz for p in self.pairs]
         grid = np.geomspace(self.frequency_min_hz, self.frequency_max_hz, CHECK_GRID_POINTS)
         return np.unique(np.concatenate(points + [grid]))
@@ -451,11 +514,22 @@ class MultiChannelProfile:
                                    self.name, self.description, self.source, self.repair)
 
     def summary(self) -> dict:
-        """Per-channel figures (as :meth:`AsdProfile.summary`) and the pairs, as plain data."""
+        """Per-channel figures (as :meth:`AsdProfile.summary`) and the pairs, as plain data.
+
+        Examples
+        --------
+        >>> flat = AsdProfile([20, 2000], [0.01, 0.01])
+        >>> [c["name"] for c in MultiChannelProfile(("x", "y"), (flat, flat)).summary()["channels"]]
+        ['x', 'y']
+
+        References
+        ----------
+        See :meth:`AsdProfile.summary`.
+        """
         return {
             "name": self.name,
             "description": self.description,
-            "channels": [{"name": n, **c.summary()} for n, c in zip(self.channel_names, self.channels)],
+            "channels": [{**c.summary(), "name": n} for n, c in zip(self.channel_names, self.channels)],
             "pairs": [
                 {
                     "channels": [self.channel_names[p.first], self.channel_names[p.second]],
@@ -469,7 +543,18 @@ class MultiChannelProfile:
         }
 
     def to_dict(self) -> dict:
-        """Channels (breakpoints in g^2/Hz) and pairs as plain data, for a sidecar."""
+        """Channels (breakpoints in g^2/Hz) and pairs as plain data.
+
+        Examples
+        --------
+        >>> flat = AsdProfile([20, 2000], [0.01, 0.01])
+        >>> MultiChannelProfile(("x", "y"), (flat, flat)).to_dict()["pairs"]
+        []
+
+        References
+        ----------
+        None (bookkeeping).
+        """
         return {
             "name": self.name,
             "channels": [
