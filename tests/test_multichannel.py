@@ -390,3 +390,34 @@ def test_analysis_never_imports_the_generator():
     code = ("import sys, vibsynth.analysis.channels, vibsynth.channel_jobs; "
             "print(any(m.startswith(('vibsynth.generate', 'vibsynth.transforms')) for m in sys.modules))")
     assert subprocess.run([sys.executable, "-c", code], capture_output=True, text=True).stdout.strip() == "False"
+
+
+def test_channels_with_different_bands(tmp_path):
+    """Channel b stops at 500 Hz: above it only a has power; the pair is judged where both have a band."""
+    a = AsdProfile([20.0, 2000.0], [0.01, 0.01])
+    b = AsdProfile([10.0, 500.0], [0.02, 0.02])
+    one = np.array([1.0])
+    profile = MultiChannelProfile(("a", "b"), (a, b), (ChannelPair(0, 1, one, 0.6 * one, np.array([-45.0])),))
+    x = Synthesizer(make_channel_plan(profile, 200.0, RATE, memory_budget_bytes=1.0), seed=1).samples()
+    f, asd_b = scipy.signal.welch(x[:, 1], fs=RATE, nperseg=2048)
+    above = f > 560.0
+    assert np.max(asd_b[above]) < 1e-6 * 0.02  # no power of b above its band (scipy.signal.welch)
+    both = (f > 25.0) & (f < 490.0)
+    _, coherence = scipy.signal.coherence(x[:, 0], x[:, 1], fs=RATE, nperseg=2048)
+    _, cross = scipy.signal.csd(x[:, 0], x[:, 1], fs=RATE, nperseg=2048)
+    # acceptance figures of this feature (common practice, no source)
+    assert np.mean(np.abs(coherence[both] - 0.6) <= 0.05) >= 0.95
+    assert np.mean(np.abs(np.angle(cross[both], deg=True) + 45.0) <= 5.0) >= 0.95
+    for column, channel in enumerate((a, b)):
+        assert np.sqrt(np.mean(x[:, column] ** 2)) == pytest.approx(channel.grms, rel=0.01)
+
+
+def test_info_json_reports_the_check(tmp_path):
+    path = tmp_path / "three.toml"
+    path.write_text(THREE)
+    status, out, _ = _quiet_main(["info", path, "--json"])
+    data = json.loads(out)
+    assert status == 0 and data["positive_semidefinite"] is True
+    assert [c["name"] for c in data["channels"]] == ["x", "y", "z"]
+    # per-channel g RMS: the closed form of each channel's own profile
+    assert data["channels"][0]["grms"] == pytest.approx(read_profile("bench-flat").grms)
