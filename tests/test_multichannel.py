@@ -421,3 +421,29 @@ def test_info_json_reports_the_check(tmp_path):
     assert [c["name"] for c in data["channels"]] == ["x", "y", "z"]
     # per-channel g RMS: the closed form of each channel's own profile
     assert data["channels"][0]["grms"] == pytest.approx(read_profile("bench-flat").grms)
+
+
+def test_factors_match_numpy_cholesky_and_reproduce_semidefinite_matrices():
+    from vibsynth.profile.multichannel import factor_matrices
+
+    rng = np.random.default_rng(12)
+    a = rng.standard_normal((500, 4, 4)) + 1j * rng.standard_normal((500, 4, 4))
+    definite = a @ np.conj(np.swapaxes(a, 1, 2))
+    factors, eigen_lines = factor_matrices(definite)
+    assert eigen_lines == 0
+    np.testing.assert_allclose(factors, np.linalg.cholesky(definite), rtol=1e-10, atol=1e-12)  # numpy (LAPACK)
+    rank_two = a[:, :, :2] @ np.conj(np.swapaxes(a[:, :, :2], 1, 2))  # semidefinite, rank 2
+    factors, eigen_lines = factor_matrices(rank_two)
+    assert eigen_lines == 500
+    np.testing.assert_allclose(factors @ np.conj(np.swapaxes(factors, 1, 2)), rank_two, atol=1e-10)
+
+
+def test_a_channel_beyond_a_given_full_scale_is_refused_naming_the_sample(tmp_path):
+    path = tmp_path / "three.toml"
+    path.write_text(THREE)
+    drive = tmp_path / "d.wav"
+    status, _, err = _quiet_main(["generate", path, "-o", drive, "--duration", 4, "--rate", RATE, "--seed", 6,
+                                  "--full-scale", 5, "--subtype", "pcm16"])
+    expected = Synthesizer(make_channel_plan(parse_any_toml(THREE), 4.0, RATE), seed=6).samples()
+    first = int(np.flatnonzero(np.any(np.abs(expected) > 5 * (2**15 - 1) / 2**15, axis=1))[0])
+    assert status == 2 and f"sample {first} is" in err and not drive.exists()
