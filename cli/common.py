@@ -113,7 +113,8 @@ def mark_drive_written() -> None:
 def read_stdin_profile():
     """A profile from standard input: TOML when the text has a ``[[`` table or a ``key =`` line, else CSV."""
     from vibsynth.errors import InputError
-    from vibsynth.profile.files import parse_csv_profile, parse_toml_profile
+    from vibsynth.profile.files import parse_csv_profile
+    from vibsynth.profile.multichannel import parse_any_toml as parse_toml_profile
 
     text = sys.stdin.read()
     if not text.strip():
@@ -143,10 +144,17 @@ def looks_like_toml(text: str) -> bool:
 
 
 def load_profile(spec: str, grms: float | None = None, level_db: float | None = None):
-    """Read a profile (file, preset name, or ``-`` for stdin) and apply an optional rescale."""
-    from vibsynth.profile.files import read_profile
+    """Read a profile (file, preset name, or ``-`` for stdin; multi-channel TOML too) and apply an optional rescale."""
+    from vibsynth.profile.multichannel import MultiChannelProfile, read_any_profile
 
-    profile = read_stdin_profile() if spec == STDIN else read_profile(spec)
+    profile = read_stdin_profile() if spec == STDIN else read_any_profile(spec)
+    if isinstance(profile, MultiChannelProfile):
+        note(f"profile {profile.name}: {profile.channel_count} channels ({', '.join(profile.channel_names)}), "
+             f"{profile.frequency_min_hz:g}-{profile.frequency_max_hz:g} Hz")
+        if grms is not None:
+            fail("--grms rescales one channel; for a multi-channel profile give 'grms' in each [[channels]] table "
+                 "or use --level-db")
+        return profile.scaled_db(level_db) if level_db is not None else profile
     note(f"profile {profile.name}: {profile.frequency_min_hz:g}-{profile.frequency_max_hz:g} Hz, "
          f"{profile.grms:.4g} g RMS")
     if grms is not None and level_db is not None:

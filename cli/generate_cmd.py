@@ -134,7 +134,8 @@ def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_li
     quiet = is_quiet(command_quiet)
     target = load_profile(profile, grms, level_db)
     if inch:
-        check_limits_in_inches(target, stroke_limit, velocity_limit)
+        for channel in getattr(target, "channels", (target,)):  # a multi-channel profile: every channel
+            check_limits_in_inches(channel, stroke_limit, velocity_limit)
     stroke_limit, velocity_limit = limits_in_si(stroke_limit, velocity_limit, inch)
     request = drive_job.DriveRequest(
         output=output,
@@ -341,6 +342,8 @@ def drive_summary(prepared, written: dict) -> dict:
 
     plan, target, request = prepared.plan, prepared.profile, prepared.request
     scaled = prepared.file_format in ("wav", "flac")
+    if plan.channels:
+        return channel_drive_summary(prepared, written)
     summary = {
         "file": str(request.output),
         "sidecar": str(drivefile.sidecar_path(request.output)),
@@ -378,10 +381,77 @@ def drive_summary(prepared, written: dict) -> dict:
     return summary
 
 
+def channel_drive_summary(prepared, written: dict) -> dict:
+    """--json of a multi-channel drive: as a single-channel one, with ``channels`` (per-channel targets and peaks)."""
+    from vibsynth.io import drivefile
+
+    plan, target, request = prepared.plan, prepared.profile, prepared.request
+    scaled = prepared.file_format in ("wav", "flac")
+    return {
+        "file": str(request.output),
+        "sidecar": str(drivefile.sidecar_path(request.output)),
+        "format": prepared.file_format,
+        "subtype": prepared.subtype,
+        "samples": plan.total_samples,
+        "rate_hz": plan.rate_hz,
+        "duration_s": plan.duration_s,
+        "seed": written.get("seed", prepared.seed),
+        "mode": plan.mode,
+        "frame_length_samples": plan.frame_length,
+        "resolution_hz": plan.resolution_hz,
+        "amplitude": plan.amplitude,
+        "loop": bool(request.loop),
+        "ramp_s": request.ramp_s if plan.ramp_in_samples else 0.0,
+        "full_scale_g": written.get("scale") if scaled else None,
+        "peak_g": written.get("peak_g"),
+        "channels": [
+            {"name": name, "column": entry.get("column"), "peak_g": entry.get("peak_g"), "grms_g": channel.grms,
+             "frequency_min_hz": channel.frequency_min_hz, "frequency_max_hz": channel.frequency_max_hz,
+             "velocity_rms_m_s": channel.velocity_rms_m_s,
+             "displacement_peak_to_peak_3sigma_m": channel.displacement_peak_to_peak_3sigma_m}
+            for name, channel, entry in zip(target.channel_names, target.channels, written.get("channels") or ())
+        ],
+        "pairs": written.get("pairs"),
+        "transform": None,
+        "compensation": None,
+        "warnings": list(session().warnings),
+        "caution": DRIVE_CAUTION,
+    }
+
+
+def format_channels_written(prepared, written: dict, inch: bool = False) -> str:
+    """What was written for a multi-channel drive: file, one line per channel, how the record was made."""
+    from vibsynth.io import drivefile
+
+    plan, target, request = prepared.plan, prepared.profile, prepared.request
+    side = drivefile.sidecar_path(request.output)
+    scale_text = (f", one full scale {written['scale']:.6g} g for all channels"
+                  if prepared.file_format in ("wav", "flac") else "")
+    lines = [
+        f"wrote {request.output} (sidecar {side.name})",
+        f"  samples     {plan.total_samples} at {plan.rate_hz:g} Hz ({plan.duration_s:g} s), {len(plan.channels)} "
+        f"channels, {prepared.file_format} {prepared.subtype}{scale_text}",
+    ]
+    for name, channel, entry in zip(target.channel_names, target.channels, written.get("channels") or ()):
+        lines.append(
+            f"  channel {name:<4}{channel.grms:.4g} g RMS ({channel.frequency_min_hz:g}-{channel.frequency_max_hz:g} Hz), "
+            f"peak {entry.get('peak_g', float('nan')):.4g} g; stroke "
+            f"{length_text(channel.displacement_peak_to_peak_3sigma_m, inch)} p-p (3 sigma), velocity "
+            f"{velocity_text(channel.velocity_rms_m_s, inch)} RMS")
+    lines.append(
+        f"  generation  {plan.mode}, {'record' if plan.mode == 'periodic' else 'frames'} of {plan.frame_length} samples "
+        f"({plan.resolution_hz:.4g} Hz lines), spectral density matrix factored per line, {plan.amplitude} "
+        f"source amplitudes, seed {prepared.seed}" + (f", ramps {request.ramp_s:g} s" if plan.ramp_in_samples else "")
+    )
+    return "\n".join(lines)
+
+
 def format_written(prepared, written: dict, inch: bool = False) -> str:
     """What was written, the figures a rig operator checks, and how the record was made."""
     from vibsynth.io import drivefile
 
+    if prepared.plan.channels:
+        return format_channels_written(prepared, written, inch)
     plan, target, request = prepared.plan, prepared.profile, prepared.request
     side = drivefile.sidecar_path(request.output)
     file_format = prepared.file_format

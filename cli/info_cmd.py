@@ -48,6 +48,75 @@ def _format_info(profile, inch: bool) -> str:
     return "\n".join(lines)
 
 
+def _format_channel_info(profile, inch: bool) -> str:
+    """A multi-channel profile: one row of figures per channel, then the pairs."""
+    lines = [f"{profile.name}: {profile.description}" if profile.description else profile.name]
+    if profile.source:
+        lines.append(f"from {profile.source}")
+    lines.append("")
+    unit_v, unit_d = ("in/s", "in") if inch else ("m/s", "mm")
+    lines.append(f"  {'channel':<10} {'band (Hz)':>13} {'g RMS':>8} {'velocity RMS':>14} {'stroke p-p 3s':>14} "
+                 f"{'up-crossings/s':>15}")
+    for name, channel in zip(profile.channel_names, profile.channels):
+        summary = channel.summary()
+        velocity = summary["velocity_rms"] / (METRE_PER_INCH if inch else 1.0)
+        stroke = summary["displacement_peak_to_peak_3sigma"] / (METRE_PER_INCH if inch else 1e-3)
+        band = f"{summary['frequency_min']:g}-{summary['frequency_max']:g}"
+        lines.append(f"  {name:<10} {band:>13} {summary['grms']:>8.4g} {velocity:>9.4g} {unit_v:<4} "
+                     f"{stroke:>9.4g} {unit_d:<4} {summary['zero_upcrossing_rate']:>15.4g}")
+    lines.append("")
+    if profile.pairs:
+        lines.append("  pairs (coherence = ordinary coherence 0..1; phase = angle of G_ab = E[conj(A) B], degrees)")
+        for pair in profile.pairs:
+            names = f"{profile.channel_names[pair.first]}-{profile.channel_names[pair.second]}"
+            if pair.frequencies_hz.size == 1:
+                lines.append(f"    {names:<12} coherence {pair.coherence[0]:.3g}, phase {pair.phase_deg[0]:+.4g} deg")
+            else:
+                points = ", ".join(f"{f:g} Hz: {c:.3g} / {p:+.4g} deg"
+                                   for f, c, p in zip(pair.frequencies_hz, pair.coherence, pair.phase_deg))
+                lines.append(f"    {names:<12} {points}")
+    unspecified = profile.channel_count * (profile.channel_count - 1) // 2 - len(profile.pairs)
+    if unspecified:
+        lines.append(f"    ({unspecified} other pair(s) incoherent)")
+    return "\n".join(lines)
+
+
+def _channel_info(profile, as_json: bool, inch: bool, repair: bool, write_path, quiet: bool) -> None:
+    """`vibsynth info` on a multi-channel profile: figures per channel and the positive-semidefinite check."""
+    from vibsynth.cli.common import fail
+
+    if write_path:
+        fail("--write holds one channel; a multi-channel profile is already its own TOML file")
+    violation = profile.check_psd()
+    moved = None
+    if violation is not None and not repair:
+        fail(f"{profile.source or profile.name}: {violation.message()}")
+    if violation is not None:
+        profile, moved = profile.repaired()
+    if as_json:
+        data = profile.summary()
+        data["positive_semidefinite"] = violation is None
+        data["repair"] = moved
+        if violation is not None:
+            data["violation"] = {"frequency_hz": violation.frequency_hz, "channels": list(violation.channels),
+                                 "smallest_eigenvalue": violation.smallest_eigenvalue}
+        click.echo(json.dumps(data, indent=2))
+        return
+    if quiet:
+        return
+    click.echo(_format_channel_info(profile, inch))
+    grid = profile.check_grid_hz()
+    if violation is None:
+        click.echo(f"  spectral density matrix positive semidefinite at all {grid.size} checked frequencies "
+                   f"(every breakpoint and a log grid over {profile.frequency_min_hz:g}-{profile.frequency_max_hz:g} Hz)")
+    else:
+        click.echo(f"  NOT positive semidefinite: {violation.message()}")
+        click.echo(f"  repaired by {moved['method']}: largest move {moved['frobenius_max']:.4g} (Frobenius norm of the "
+                   f"coherence matrix) at {moved['frequency_hz']:.6g} Hz; coherence changed by at most "
+                   f"{moved['coherence_change_max']:.4g}, phase by at most {moved['phase_change_deg_max']:.4g} deg. "
+                   "Add 'repair = true' to the profile to generate from the repaired matrix.")
+
+
 @click.command()
 @options.profile_argument
 @options.json_output.but(help="Print the figures as JSON (keys: grms, velocity_rms, ...; SI units).")
@@ -64,7 +133,10 @@ def _format_info(profile, inch: bool) -> str:
     help="Also write the (rescaled) profile to FILE (.toml or .csv).",
 )
 @options.quiet.but(help="Print nothing but requested JSON (e.g. with --write; errors still show).")
-def info(profile, as_json, grms, level_db, inch, write_path, command_quiet):
+@click.option("--repair", is_flag=True,
+              help="Multi-channel profiles: where the spectral density matrix is not positive semidefinite, show the "
+                   "nearest valid one (eigenvalue clipping) and how far it moved, instead of refusing.")
+def info(profile, as_json, grms, level_db, inch, write_path, command_quiet, repair):
     """Overall figures of an ASD profile: g RMS, velocity, displacement, stroke.
 
     Prints each breakpoint with the slope (dB/octave) and the share of the
@@ -73,10 +145,21 @@ def info(profile, as_json, grms, level_db, inch, write_path, command_quiet):
     segments), velocity and displacement RMS (SI; --inch for in/s and in),
     the 3-sigma peak-to-peak displacement a shaker needs, and Rice's zero
     up-crossing and peak rates.
+
+    A multi-channel profile ([[channels]], [[pairs]]) shows these figures per
+    channel and the pairs, and checks that the spectral density matrix is
+    positive semidefinite at every breakpoint and on a fine log grid; where it
+    is not, one line names the frequency, the channels and the smallest
+    eigenvalue, and the exit status is 2 (--repair shows the nearest valid
+    matrix instead).
     """
     from vibsynth.profile.files import write_profile
+    from vibsynth.profile.multichannel import MultiChannelProfile
 
     loaded = load_profile(profile, grms=grms, level_db=level_db)
+    if isinstance(loaded, MultiChannelProfile):
+        _channel_info(loaded, as_json, inch, repair, write_path, is_quiet(command_quiet))
+        return
     if write_path:
         write_profile(loaded, write_path)
     if as_json:

@@ -82,7 +82,8 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
     spec = profile or DEFAULT_PRESET
     target = load_profile(spec, grms, level_db)
     if inch:
-        check_limits_in_inches(target, stroke_limit, velocity_limit)
+        for channel in getattr(target, "channels", (target,)):  # a multi-channel profile: every channel
+            check_limits_in_inches(channel, stroke_limit, velocity_limit)
     stroke_limit, velocity_limit = limits_in_si(stroke_limit, velocity_limit, inch)
     rate_hz = rate if rate is not None else default_rate_hz(target.frequency_max_hz)
     note(f"rate {rate_hz:g} Hz" + (" (the smallest common rate >= 2.56 x the top frequency)" if rate is None else ""))
@@ -116,6 +117,9 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
         overwrite=overwrite,
         paper=paper.lower(),
     )
+    if getattr(target, "channels", None) is not None:  # a multi-channel profile
+        run_channels_cli(target, request, folder, quiet, as_json, inch)
+        return
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", VibsynthWarning)  # the result carries them; printed once each
         pending = drive_job.prepare_run(target, request)
@@ -137,6 +141,40 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
         click.echo(format_written(pending.prepared, result.written, inch))
         click.echo("")
         click.echo(format_verification(result.verification, result.drive_path.name))
+        click.echo("")
+        click.echo(f"files in {folder}/:")
+        for name in result.files:
+            click.echo(f"  {name}")
+    caution()
+    click.get_current_context().exit(0 if result.passed else 1)
+
+
+def run_channels_cli(target, request, folder: Path, quiet: bool, as_json: bool, inch: bool) -> None:
+    """`vibsynth run` on a multi-channel profile: drive, verify.json, matrix.png and per-channel figures."""
+    import warnings
+
+    from vibsynth.channel_jobs import run_channels
+    from vibsynth.cli.generate_cmd import format_channels_written
+    from vibsynth.cli.verify_cmd import format_channel_verification
+    from vibsynth.errors import VibsynthWarning
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", VibsynthWarning)  # the result carries them; printed once each
+        try:
+            result = run_channels(target, request)
+        finally:
+            if any(Path(folder).glob("drive.*")):
+                mark_drive_written()
+    for message in result.warnings:
+        warn(message)
+    if as_json:
+        print_json({"folder": str(folder), "files": list(result.files), "pass": bool(result.passed),
+                    "verification": result.verification.to_dict(), "warnings": list(session().warnings),
+                    "caution": DRIVE_CAUTION})
+    elif not quiet:
+        click.echo(format_channels_written(result.prepared, result.written, inch))
+        click.echo("")
+        click.echo(format_channel_verification(result.verification, result.drive_path.name))
         click.echo("")
         click.echo(f"files in {folder}/:")
         for name in result.files:

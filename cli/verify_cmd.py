@@ -143,11 +143,21 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     crossing rate against Rice, largest peak against Davenport). Ramps recorded
     in the sidecar are left out. Kurtosis, skewness or clip targets recorded in
     the sidecar are judged too.
+
+    A multi-channel drive (its sidecar lists channels) is judged channel by
+    channel as above, and every pair of channels for coherence and phase
+    against the sidecar's pairs (unlisted pairs: incoherent), with bands that
+    allow for the estimator's bias and random error at the achieved averages;
+    --report adds matrix.png (ASDs on the diagonal, coherence above, phase below).
     """
     from vibsynth import jobs
     from vibsynth.io.drivefile import open_drive
 
     drive = open_drive(file, rate_hz=rate, scale=scale)
+    if drive.channels:
+        verify_channels(drive, file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction, resolution, dof,
+                        as_json, report_dir, command_quiet)
+        return
     if level_db is not None and not profile_spec:
         raise click.UsageError("--level-db shifts a --profile target; give --profile too")
     target = load_profile(profile_spec, level_db=level_db) if profile_spec else jobs.drive_target(drive)
@@ -174,3 +184,62 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
         if report_dir:
             click.echo(f"  report       {report_dir}/ (report.pdf, asd.png, amplitude.png, excerpt.png, rms.png, verify.json)")
     click.get_current_context().exit(0 if result.passed else 1)
+
+
+def verify_channels(drive, file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction, resolution, dof,
+                    as_json, report_dir, command_quiet) -> None:
+    """`vibsynth verify` on a multi-channel drive: each channel as a single-channel drive, then every pair."""
+    from vibsynth import channel_jobs, jobs
+    from vibsynth.io.atomic import write_json_atomic
+    from vibsynth.profile.multichannel import MultiChannelProfile
+
+    targets = None
+    if profile_spec:
+        given = load_profile(profile_spec, level_db=level_db)
+        if not isinstance(given, MultiChannelProfile) or given.channel_names != tuple(drive.channels):
+            raise click.UsageError(f"--profile must be a multi-channel profile with the channels "
+                                   f"{', '.join(drive.channels)}")
+        pairs = {(p.first, p.second): (p.coherence_at, p.phase_deg_at) for p in given.pairs}
+        targets = (given.channels, pairs)
+    elif level_db is not None:
+        raise click.UsageError("--level-db shifts a --profile target; give --profile too")
+    criteria = jobs.drive_criteria(drive, parse_tolerance(tolerance), grms_tolerance, min_fraction)
+    note(f"verifying {file} ({drive.samples} samples at {drive.rate_hz:g} Hz, channels {', '.join(drive.channels)})")
+    result = channel_jobs.verify_channel_drive(drive, criteria, resolution, dof, targets)
+    data = {"file": str(file), **result.to_dict()}
+    if report_dir:
+        paths = channel_jobs.write_channel_report(result, report_dir, Path(file).name)
+        write_json_atomic(Path(report_dir) / "verify.json", data)
+        data["report"] = {**paths, "json": str(Path(report_dir) / "verify.json")}
+    if as_json:
+        click.echo(json.dumps(data, indent=2, allow_nan=False))
+    elif not is_quiet(command_quiet):
+        click.echo(format_channel_verification(result, Path(file).name))
+        if report_dir:
+            click.echo(f"  report       {report_dir}/ (matrix.png, asd-CHANNEL.png, verify.json)")
+    click.get_current_context().exit(0 if result.passed else 1)
+
+
+def format_channel_verification(result, name: str) -> str:
+    """One line per channel (ASD, g RMS) and per pair (coherence, phase), then the verdict."""
+    lines = [f"{name}: {'PASS' if result.passed else 'FAIL'} ({len(result.channel_names)} channels)"]
+    for channel, verification in zip(result.channel_names, result.channels):
+        data = verification.to_dict()
+        lines.append(
+            f"  channel {channel:<6} {'pass' if verification.passed else 'FAIL'}: g RMS {verification.grms_measured:.4g} "
+            f"(target {verification.grms_target:.4g}, {verification.grms_error_percent:+.2f} %), ASD lines within "
+            f"tolerance {100 * (data['asd']['fraction_within_tolerance'] or 0):.1f} %"
+            + ("" if verification.passed else f"; failed: {', '.join(verification.failed)}"))
+    for check in result.pairs:
+        data = check.to_dict()
+        what = "specified" if check.specified else "incoherent (not specified)"
+        phase = ("" if data["phase_error_95_percent_deg"] is None
+                 else f", phase error 95 % <= {data['phase_error_95_percent_deg']:.2f} deg")
+        lines.append(
+            f"  pair {'-'.join(check.channels):<10} {'pass' if check.passed else 'FAIL'}: {what}, "
+            f"{100 * data['fraction_within']:.1f} % of {data['lines_judged']} lines in the bands "
+            f"(need {100 * data['min_fraction_within']:.0f} %); coherence error 95 % <= "
+            f"{data['coherence_error_95_percent']:.3f}{phase}")
+    lines.append(f"  estimate     Welch, {result.segments} segments, {result.dof:.0f} dof "
+                 f"(n_d = {result.dof / 2:.0f} averages; coherence bias (1 - gamma^2)^2 / n_d allowed for)")
+    return "\n".join(lines)

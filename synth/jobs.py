@@ -221,6 +221,12 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     """
     import scipy
 
+    from vibsynth.profile.multichannel import MultiChannelProfile
+
+    if isinstance(profile, MultiChannelProfile):  # correlated channels: vibsynth.channel_jobs
+        from vibsynth.channel_jobs import prepare_channel_drive
+
+        return prepare_channel_drive(profile, request)
     from vibsynth.generate import design as nongaussian
     from vibsynth.generate import pipeline
     from vibsynth.generate import plan as synthesis
@@ -371,8 +377,9 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
                 peak = synthesizer.peak_abs()
             else:
                 peak = 0.0
+                columns = slice(None) if plan.channels else 0  # every channel shares the file's full scale
                 for chunk in synthesizer.iter_chunks(CHUNK_SAMPLES):
-                    peak = max(peak, float(np.max(np.abs(chunk[:, 0]))))
+                    peak = max(peak, float(np.max(np.abs(chunk[:, columns]))))
                     step(len(chunk))
             scale = drivefile.full_scale_from_peak(peak)
             sidecar = dataclasses.replace(sidecar, full_scale_from="peak",
@@ -387,6 +394,7 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
         scale=scale,
         sidecar=sidecar,
         progress=step,
+        channels=plan.channels,
     )
 
 

@@ -390,7 +390,10 @@ class PartitionedHighpass:
         return last_block + self.lag
 
     def filter(self, pieces: Iterator[np.ndarray]) -> Iterator[np.ndarray]:
-        """Output blocks (P samples each) from the stream pieces ``first_piece .. last_piece``, in order."""
+        """Output blocks (P samples each) from the stream pieces ``first_piece .. last_piece``, in order.
+
+        Pieces of shape (P,) or (P, channels) (each channel filtered alike).
+        """
         size, spectra, lag = self.partition, self.spectra, self.lag
         count = spectra.shape[0]
         direct = lag // 2  # the piece holding stream samples n + D of output block o is piece o + lag/2
@@ -399,14 +402,16 @@ class PartitionedHighpass:
         previous = None
         for current in pieces:
             if previous is not None:
-                recent.append(scipy.fft.rfft(np.concatenate((previous, current))))
+                if current.ndim == 2 and spectra.ndim == 2:
+                    spectra = spectra[:, :, None]
+                recent.append(scipy.fft.rfft(np.concatenate((previous, current)), axis=0))
                 kept.append(current)
                 if len(recent) == count:
                     accumulated = recent[-1] * spectra[0]
                     product = np.empty_like(accumulated)
                     for q in range(1, count):
                         accumulated += np.multiply(recent[-1 - q], spectra[q], out=product)
-                    lowpass = scipy.fft.irfft(accumulated, n=2 * size, overwrite_x=True)
+                    lowpass = scipy.fft.irfft(accumulated, n=2 * size, axis=0, overwrite_x=True)
                     yield kept[0] - lowpass[size:]
             previous = current
 

@@ -169,15 +169,20 @@ class Synthesizer:
             rng = child_generator(self.root, PERIODIC_STREAM)
         else:
             rng = child_generator(self.root, FRAME_STREAM, int(index))
+        if plan.channel_factors is not None:  # multi-channel: shape (lines, channels)
+            from vibsynth.generate.channels import draw_channel_lines
+
+            return draw_channel_lines(rng, plan)
         return _draw_lines(rng, plan._stream_amplitudes, plan.amplitude, plan._band)
 
     def frame(self, index: int) -> np.ndarray:
-        """Unwindowed periodic frame ``index`` (samples), before transform, scale and ramps."""
-        return scipy.fft.irfft(self.frame_lines(index), n=self.plan.frame_length, norm="forward", overwrite_x=True)
+        """Unwindowed periodic frame ``index`` (samples, or (samples, channels)), before transform, scale and ramps."""
+        return scipy.fft.irfft(self.frame_lines(index), n=self.plan.frame_length, axis=0, norm="forward",
+                               overwrite_x=True)
 
     def _windowed_frame(self, index: int) -> np.ndarray:
         frame = self.frame(index)
-        frame *= self.plan._window
+        frame *= self.plan._window if frame.ndim == 1 else self.plan._window[:, None]
         return frame
 
     # ------------------------------------------------------------ stages
@@ -226,7 +231,9 @@ class Synthesizer:
             plan = self.plan
             lines = self.frame_lines(0)
             total = plan.total_samples
-            if len(plan.quantities) == 1:
+            if plan.channels:  # multi-channel: one column per channel
+                columns = scipy.fft.irfft(lines, n=total, axis=0, norm="forward", overwrite_x=True)
+            elif len(plan.quantities) == 1:
                 columns = scipy.fft.irfft(lines, n=total, norm="forward", overwrite_x=True).reshape(total, 1)
             else:
                 columns = np.empty((total, len(plan.quantities)))
@@ -317,8 +324,9 @@ class Synthesizer:
 
         Piece j holds samples ``[j size, (j+1) size)``; pieces before sample 0 are zeros.
         """
+        shape = (size, len(self.plan.channels)) if self.plan.channels else size
         for _ in range(first, min(last, -1) + 1):
-            yield np.zeros(size)
+            yield np.zeros(shape)
         first = max(first, 0)
         if last < first:
             return
@@ -418,7 +426,9 @@ class Synthesizer:
         size = self._block
         first_block, last_block = start // size, (stop - 1) // size
         position = first_block * size  # absolute index of the next block's first sample
-        buffer = np.empty((min(chunk_samples, stop - start), 1))
+        width = self.plan.column_count
+        target = slice(None) if self.plan.channels else 0
+        buffer = np.empty((min(chunk_samples, stop - start), width))
         filled, chunk_start = 0, start
         blocks = self._output_blocks(first_block, last_block)
         try:
@@ -427,7 +437,7 @@ class Synthesizer:
                 hi = min(stop - position, size)
                 while lo < hi:
                     take = min(hi - lo, buffer.shape[0] - filled)
-                    buffer[filled : filled + take, 0] = block[lo : lo + take]
+                    buffer[filled : filled + take, target] = block[lo : lo + take]
                     filled += take
                     lo += take
                     if filled == buffer.shape[0]:
@@ -435,7 +445,7 @@ class Synthesizer:
                         yield buffer
                         chunk_start += filled
                         filled = 0
-                        buffer = np.empty((min(chunk_samples, stop - chunk_start), 1)) if chunk_start < stop else buffer
+                        buffer = np.empty((min(chunk_samples, stop - chunk_start), width)) if chunk_start < stop else buffer
                 position += size
         finally:
             blocks.close()
@@ -478,10 +488,11 @@ class Synthesizer:
         return self.samples()
 
     def peak_abs(self, chunk_samples: int = 1 << 18) -> float:
-        """Largest |acceleration| in the record (g): a full pass in overlap-add mode."""
+        """Largest |acceleration| in the record (g; of any channel): a full pass in overlap-add mode."""
+        columns = slice(None) if self.plan.channels else 0
         if self.plan.mode == "periodic":
-            return float(np.max(np.abs(self._periodic_record()[:, 0])))
-        return max(float(np.max(np.abs(chunk[:, 0]))) for chunk in self.iter_chunks(chunk_samples))
+            return float(np.max(np.abs(self._periodic_record()[:, columns])))
+        return max(float(np.max(np.abs(chunk[:, columns]))) for chunk in self.iter_chunks(chunk_samples))
 
 
 # ----------------------------------------------------------------- library

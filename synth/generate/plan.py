@@ -80,6 +80,15 @@ PERIODIC_BYTES_PER_EXTRA_QUANTITY = 20
 #: 2^23 samples (numpy 2.4, scipy 1.17).
 PERIODIC_BYTES_PER_SAMPLE_TRANSFORMED = 56
 
+#: Working bytes per sample and channel of a multi-channel periodic record (lines, record, FFT scratch;
+#: taken from the single-channel figure).
+PERIODIC_BYTES_PER_CHANNEL = 48
+#: Bytes per sample for each entry of the per-line matrices while planning (complex, one line per two
+#: samples: 8 bytes per sample for each (lines, C, C) array, two alive at the peak).  With
+#: PERIODIC_BYTES_PER_CHANNEL: 288 bytes/sample estimated for 3 channels; peak RSS growth measured at
+#: about 180 bytes/sample for 3 channels and 3.1e6 samples (numpy 2.4, scipy 1.17).
+PERIODIC_BYTES_PER_FACTOR = 16
+
 #: Largest record, in samples, that a plan accepts (about 54 years at 51.2 kHz; far beyond any
 #: disk, but it keeps every size computation an exact integer).
 MAX_RECORD_SAMPLES = 1e14
@@ -143,7 +152,8 @@ def choose_frame_length(rate_hz: float, resolution_hz: float) -> int:
     return 1 << (needed - 1).bit_length()
 
 
-def periodic_memory_bytes(total_samples: int, quantity_count: int = 1, transformed: bool = False) -> int:
+def periodic_memory_bytes(total_samples: int, quantity_count: int = 1, transformed: bool = False,
+                          channel_count: int = 1) -> int:
     """Estimated working memory (bytes) of one periodic record of ``total_samples`` samples.
 
     Parameters
@@ -155,6 +165,10 @@ def periodic_memory_bytes(total_samples: int, quantity_count: int = 1, transform
     transformed : bool
         A non-Gaussian record (memoryless transform and its frequency-domain
         high-pass): :data:`PERIODIC_BYTES_PER_SAMPLE_TRANSFORMED` per sample.
+    channel_count : int
+        Channels of a multi-channel record: :data:`PERIODIC_BYTES_PER_CHANNEL` per
+        sample and channel (lines, record) plus :data:`PERIODIC_BYTES_PER_FACTOR`
+        per sample and factor entry.
 
     Returns
     -------
@@ -171,6 +185,9 @@ def periodic_memory_bytes(total_samples: int, quantity_count: int = 1, transform
     Measured for this implementation (no published source).
     """
     base = PERIODIC_BYTES_PER_SAMPLE_TRANSFORMED if transformed else PERIODIC_BYTES_PER_SAMPLE
+    if int(channel_count) > 1:
+        count = int(channel_count)
+        return int(total_samples) * (PERIODIC_BYTES_PER_CHANNEL * count + PERIODIC_BYTES_PER_FACTOR * count * count)
     per_sample = base + PERIODIC_BYTES_PER_EXTRA_QUANTITY * (int(quantity_count) - 1)
     return int(total_samples) * per_sample
 
@@ -226,6 +243,15 @@ class SynthesisPlan:
     memory_budget_bytes : int
         The memory budget option the mode was chosen with (recorded, so the
         choice can be read off the plan).
+    channels : tuple of str
+        Channel names of a multi-channel record (empty: one channel).
+    channel_factors : numpy.ndarray or None, complex, shape (hi - lo, C, C)
+        A multi-channel record's factor ``H_k`` of each band line ``k`` in
+        ``[lo, hi)`` (the non-zero lines of ``line_spectrum``, which is then
+        the trace of the spectral density matrix): ``H_k H_k^H = conj(G(f_k)) df / 2``
+        in g for ``irfft(norm="forward")``, G the spectral density matrix
+        (``G_ab = E[conj(A) B]``).  Lines are ``H_k z_k`` with ``z_k`` C
+        independent random-phase sources (see :mod:`vibsynth.generate.channels`).
 
     Examples
     --------
@@ -254,6 +280,8 @@ class SynthesisPlan:
     warnings: tuple = field(default=())
     spill_highpass: SpillHighpass | None = None
     memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES
+    channels: tuple = ()
+    channel_factors: np.ndarray | None = None
 
     def __post_init__(self):
         object.__setattr__(self, "mode", _check_choice(self.mode, MODES, "mode"))
@@ -318,6 +346,7 @@ class SynthesisPlan:
         object.__setattr__(self, "ramp_in_samples", ramp_in)
         object.__setattr__(self, "ramp_out_samples", ramp_out)
         object.__setattr__(self, "warnings", tuple(self.warnings))
+        self._check_channels(quantities)
         highpass = self.spill_highpass
         if highpass is not None:
             if (self.mode == "overlap-add") != (highpass.half_length is not None):
@@ -335,7 +364,37 @@ class SynthesisPlan:
                     "spill_highpass",
                 )
 
+    def _check_channels(self, quantities) -> None:
+        names = tuple(str(n) for n in self.channels)
+        object.__setattr__(self, "channels", names)
+        factors = self.channel_factors
+        if factors is None:
+            if names:
+                raise InputError("a multi-channel plan needs its channel factors", "channel_factors")
+            return
+        factors = np.array(factors, dtype=np.complex128)
+        lo, hi = _band_of(np.asarray(self.line_spectrum))
+        if len(names) < 2 or factors.shape != (hi - lo, len(names), len(names)):
+            raise InputError(
+                f"channel factors of shape {factors.shape} do not match {len(names)} channels and {hi - lo} band lines",
+                "channel_factors",
+            )
+        if self.transform is not None:
+            raise InputError(
+                "non-Gaussian drives (kurtosis, skewness, clip) are not implemented for multi-channel profiles; "
+                "drop those options or generate each channel alone", "kurtosis",
+            )
+        if quantities != ("acceleration",):
+            raise InputError("a multi-channel record holds acceleration only (one column per channel)", "quantities")
+        factors.setflags(write=False)
+        object.__setattr__(self, "channel_factors", factors)
+
     # ---------------------------------------------------------- geometry
+    @property
+    def column_count(self) -> int:
+        """Columns of the record: channels of a multi-channel record, else quantities."""
+        return len(self.channels) if self.channels else len(self.quantities)
+
     @property
     def resolution_hz(self) -> float:
         """Line spacing of the frame grid, ``rate_hz / frame_length`` (Hz)."""
@@ -517,6 +576,7 @@ def make_plan(
     output_scale: float | None = None,
     spill_highpass: bool = True,
     rest_taper_s: float | None = None,
+    channel_count: int = 1,
 ) -> SynthesisPlan:
     """Check the request against the profile and plan the record (warnings kept in ``plan.warnings`` only).
 
@@ -571,6 +631,9 @@ def make_plan(
         :func:`default_rest_taper_s`; 0: none, the columns then start where the
         random phases put them).  A ramp given with these columns becomes the
         taper (the acceleration is then not faded separately).  Not with a loop.
+    channel_count : int
+        Channels of a multi-channel record (for the memory estimate only;
+        :func:`vibsynth.generate.channels.make_channel_plan` adds the channels).
 
     Returns
     -------
@@ -692,10 +755,10 @@ def make_plan(
     budget = int(budget) if math.isfinite(budget) else budget
     transformed = transform is not None
     needs_periodic = loop or len(names) > 1
-    periodic_bytes = periodic_memory_bytes(total, len(names), transformed)
+    periodic_bytes = periodic_memory_bytes(total, len(names), transformed, channel_count)
     fits = periodic_bytes <= budget
     if needs_periodic and not fits:
-        longest = int(budget // periodic_memory_bytes(1, len(names), transformed))
+        longest = int(budget // periodic_memory_bytes(1, len(names), transformed, channel_count))
         why = "a looped record" if loop else "velocity/displacement columns"
         raise InputError(
             f"{why} need the whole record in memory: {total} samples need about "

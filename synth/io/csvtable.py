@@ -75,12 +75,13 @@ class CsvWriter:
     RFC 4180.
     """
 
-    def __init__(self, temporary: Path, where: str, quantities, rate_hz: float):
+    def __init__(self, temporary: Path, where: str, quantities, rate_hz: float, column_names=None):
         self.rate_hz = float(rate_hz)
         self._handle = open(temporary, "w", encoding="ascii", newline="")
-        names = ["time_s"] + [COLUMN_NAMES[q] for q in quantities]
+        data_names = list(column_names) if column_names else [COLUMN_NAMES[q] for q in quantities]
+        names = ["time_s"] + data_names
         self._handle.write(",".join(names) + "\n")
-        self._row = ",".join([TIME_FORMAT] + [VALUE_FORMAT] * len(tuple(quantities))) + "\n"
+        self._row = ",".join([TIME_FORMAT] + [VALUE_FORMAT] * len(data_names)) + "\n"
 
     def write(self, values: np.ndarray, written: int) -> None:
         """Append rows of physical values, shape (m, q); ``written`` rows came before (sets the time)."""
@@ -135,9 +136,9 @@ def read_header(path: Path) -> tuple[list, int]:
     return names, count
 
 
-def iter_chunks(path: Path, width: int, column: int, chunk: int, start: int, stop: int, samples: int, rate_hz: float,
-                scale: float) -> Iterator[np.ndarray]:
-    """Values of data column ``column`` (0: acceleration), rows ``[start, stop)``, checking the time column.
+def iter_chunks(path: Path, width: int, column: int | None, chunk: int, start: int, stop: int, samples: int,
+                rate_hz: float, scale: float) -> Iterator[np.ndarray]:
+    """Values of data column ``column`` (0: acceleration; None: every data column), rows ``[start, stop)``, checking the time column.
 
     Examples
     --------
@@ -190,7 +191,7 @@ def _iter_rows(path, width, column, chunk, start, stop, samples, rate_hz, scale)
                     str(path),
                 )
             position += count
-            yield table[:, 1 + column] * scale
+            yield (table[:, 1:] if column is None else table[:, 1 + column]) * scale
 
 
 def _first_bad_row(block: list, width: int) -> int:

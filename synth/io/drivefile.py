@@ -13,6 +13,12 @@ Formats (chosen by the file's suffix), one module each
     float64, shape (n,) for acceleration alone or (n, q) with columns as in
     the sidecar's ``columns`` (no time column).
 
+Multi-channel drives (``channels`` given to the writer): acceleration only,
+one column per channel: a .wav/.flac channel each (one full scale for the
+file), .csv columns ``NAME_g`` after ``time_s``, .npy shape (n, channels).
+The sidecar's ``channels`` names them; :meth:`DriveFile.iter_channels` reads
+them together.
+
 Atomic writing
 --------------
 Data and sidecar are written through :mod:`vibsynth.io.atomic` (hidden
@@ -340,12 +346,12 @@ def remove_stale_partials(path, min_age_s: float = STALE_PARTIAL_AGE_S) -> list:
 
 
 def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
-                        scale: float = 1.0, check_space: bool = True) -> dict:
+                        scale: float = 1.0, check_space: bool = True, channels=()) -> dict:
     """Check that a drive file can be written as asked, before any work is done (no file is created).
 
     Parameters
     ----------
-    path, rate_hz, samples, quantities, subtype, scale
+    path, rate_hz, samples, quantities, subtype, scale, channels
         As for :class:`DriveWriter`.
     check_space : bool
         Refuse when the folder lacks the space (False: the caller checks it,
@@ -383,6 +389,10 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
             raise InputError(f"quantity {quantity!r} is not one of {', '.join(COLUMN_NAMES)}", "quantities")
     if not quantities or quantities[0] != "acceleration":
         raise InputError("the first column must be acceleration", "quantities")
+    channels = tuple(str(c) for c in channels)
+    if channels and (quantities != ("acceleration",) or len(channels) < 2 or len(set(channels)) != len(channels)):
+        raise InputError("a multi-channel drive holds acceleration only, in two or more uniquely named channels",
+                         "channels")
     if len(quantities) > 1 and file_format in ("wav", "flac"):
         raise InputError(
             f".{file_format} drive files hold acceleration only; write velocity/displacement to .csv or .npy", str(path)
@@ -405,9 +415,12 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
     if path.is_dir():
         raise InputError("is a folder; give a file name such as drive.flac", str(path))
     if check_space:
-        check_free_space(path, *estimate_file_bytes(file_format, subtype, count, quantities, rate))
+        size, exact = estimate_file_bytes(file_format, subtype, count, quantities, rate)
+        if channels:  # every channel as large as one acceleration column (the time column of a .csv counted again)
+            size = SIDECAR_ALLOWANCE_BYTES + len(channels) * size
+        check_free_space(path, size, exact and not channels)
     return {"format": file_format, "subtype": subtype, "quantities": quantities, "rate_hz": rate,
-            "samples": count, "scale": scale}
+            "samples": count, "scale": scale, "channels": channels}
 
 
 class DriveWriter:
@@ -434,6 +447,11 @@ class DriveWriter:
         gives :class:`~vibsynth.io.sidecar.Sidecar` fields); the writer fills
         in ``scale``, ``rate``, ``samples``, ``format``, ``subtype``,
         ``columns``, ``units``, ``peak_g`` and ``tool``.
+    channels : sequence of str
+        A multi-channel drive's channel names (acceleration only, one column
+        each, in g); the sidecar's ``channels`` entries (with each channel's
+        ``profile``) should be given by the caller, the writer adds
+        ``column``, ``scale``, ``unit`` and ``peak_g``.  Empty: one channel.
 
     Notes
     -----
@@ -457,9 +475,10 @@ class DriveWriter:
     """
 
     def __init__(self, path, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
-                 scale: float = 1.0, sidecar: "Sidecar | dict | None" = None):
+                 scale: float = 1.0, sidecar: "Sidecar | dict | None" = None, channels=()):
         request = check_drive_request(path, rate_hz=rate_hz, samples=samples, quantities=quantities,
-                                      subtype=subtype, scale=scale)
+                                      subtype=subtype, scale=scale, channels=channels)
+        self.channels = request["channels"]
         self.path = Path(path)
         self.format = request["format"]
         self.subtype = request["subtype"]
@@ -475,7 +494,14 @@ class DriveWriter:
                 raise InputError(f"sidecar keys {', '.join(map(repr, unknown))} are not sidecar fields; use "
                                  "those of vibsynth.io.sidecar.Sidecar", "sidecar")
             sidecar = Sidecar(**sidecar)
+        if self.channels:
+            given = list(sidecar.channels or ())
+            if given and [c.get("name") for c in given] != list(self.channels):
+                raise InputError("the sidecar's channels do not match the channel names", "channels")
+            entries = tuple(dict(c) for c in given) if given else tuple({"name": name} for name in self.channels)
+            sidecar = dataclasses.replace(sidecar, channels=entries)
         self.extra = sidecar
+        self._channel_peaks = np.zeros(len(self.channels))
         self.written = 0
         self._peak = 0.0
         self._committed = False
@@ -491,19 +517,28 @@ class DriveWriter:
     def _open(self):
         temporary, where = self._data.temporary, str(self.path)
         if self.format in ("wav", "flac"):
-            return wavflac.AudioWriter(temporary, where, self.format, self.subtype, self.rate_hz, self.scale)
+            return wavflac.AudioWriter(temporary, where, self.format, self.subtype, self.rate_hz, self.scale,
+                                       max(len(self.channels), 1))
         if self.format == "npy":
-            return npyarray.NpyWriter(temporary, where, self.samples, len(self.quantities))
-        return csvtable.CsvWriter(temporary, where, self.quantities, self.rate_hz)
+            return npyarray.NpyWriter(temporary, where, self.samples, self.width)
+        from vibsynth.io.sidecar import channel_column_name
+
+        names = [channel_column_name(c) for c in self.channels] or None
+        return csvtable.CsvWriter(temporary, where, self.quantities, self.rate_hz, names)
+
+    @property
+    def width(self) -> int:
+        """Data columns: one per channel of a multi-channel drive, else one per quantity."""
+        return len(self.channels) if self.channels else len(self.quantities)
 
     def write(self, chunk) -> None:
-        """Append samples: physical values, shape (m,) or (m, q) with one column per quantity."""
+        """Append samples: physical values, shape (m,) or (m, q) with one column per quantity (or channel)."""
         values = np.asarray(chunk, dtype=np.float64)
         if values.ndim == 1:
             values = values[:, None]
-        if values.ndim != 2 or values.shape[1] != len(self.quantities):
+        if values.ndim != 2 or values.shape[1] != self.width:
             raise InputError(
-                f"chunk of shape {np.shape(chunk)} does not match {len(self.quantities)} column(s)", str(self.path)
+                f"chunk of shape {np.shape(chunk)} does not match {self.width} column(s)", str(self.path)
             )
         count = values.shape[0]
         if self.written + count > self.samples:
@@ -511,7 +546,10 @@ class DriveWriter:
         if not np.all(np.isfinite(values)):
             bad = int(np.flatnonzero(~np.all(np.isfinite(values), axis=1))[0])
             raise InputError(f"sample {self.written + bad} is not a finite number", str(self.path))
-        if count:
+        if count and self.channels:
+            np.maximum(self._channel_peaks, np.max(np.abs(values), axis=0), out=self._channel_peaks)
+            self._peak = float(np.max(self._channel_peaks))
+        elif count:
             self._peak = max(self._peak, float(np.max(np.abs(values[:, 0]))))
         self._format_writer.write(values, self.written)
         self.written += count
@@ -522,7 +560,8 @@ class DriveWriter:
 
         return self.extra.with_file(scale=self.scale, rate=self.rate_hz, samples=self.samples,
                                     file_format=self.format, subtype=self.subtype, quantities=self.quantities,
-                                    peak_g=self._peak, tool={"name": "vibsynth", "version": __version__})
+                                    peak_g=self._peak, tool={"name": "vibsynth", "version": __version__},
+                                    channel_peaks_g=[float(p) for p in self._channel_peaks] if self.channels else None)
 
     def commit(self) -> dict:
         """Close the data, write the sidecar, and rename both into place (data first). Returns the sidecar's JSON."""
@@ -567,12 +606,12 @@ class DriveWriter:
 
 
 def write_drive(path, chunks, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
-                scale: float = 1.0, sidecar: dict | None = None, progress=None) -> dict:
+                scale: float = 1.0, sidecar: dict | None = None, progress=None, channels=()) -> dict:
     """Write an iterable of chunks to a drive file with its sidecar, atomically.
 
     Parameters
     ----------
-    path, rate_hz, samples, quantities, subtype, scale, sidecar
+    path, rate_hz, samples, quantities, subtype, scale, sidecar, channels
         As for :class:`DriveWriter`.
     chunks : iterable of numpy.ndarray
         Physical values, shape (m,) or (m, q).
@@ -589,7 +628,7 @@ def write_drive(path, chunks, *, rate_hz: float, samples: int, quantities=("acce
     See the module docstring.
     """
     with DriveWriter(path, rate_hz=rate_hz, samples=samples, quantities=quantities, subtype=subtype,
-                     scale=scale, sidecar=sidecar) as writer:
+                     scale=scale, sidecar=sidecar, channels=channels) as writer:
         for chunk in chunks:
             writer.write(chunk)
             if progress is not None:
@@ -622,6 +661,8 @@ class DriveFile:
     ramp_in_s, ramp_out_s : float
         Ramps recorded in the sidecar (0 when absent); verification judges
         the steady part between them.
+    channels : tuple of str
+        Channel names of a multi-channel drive (from its sidecar); empty for one channel.
 
     References
     ----------
@@ -638,6 +679,7 @@ class DriveFile:
     sidecar: Sidecar | None = field(default=None, compare=False)
     ramp_in_s: float = 0.0
     ramp_out_s: float = 0.0
+    channels: tuple = ()
     _data_offset: int = field(default=0, repr=False, compare=False)
     _columns_in_file: int = field(default=1, repr=False, compare=False)
     _dtype: str = field(default="<f8", repr=False, compare=False)
@@ -662,7 +704,7 @@ class DriveFile:
         return self.quantities.index(quantity)
 
     def iter_chunks(self, chunk_samples: int = 65536, start: int = 0, stop: int | None = None,
-                    quantity: str = "acceleration") -> Iterator[np.ndarray]:
+                    quantity: str = "acceleration", channel: str | None = None) -> Iterator[np.ndarray]:
         """Physical values of one quantity, samples ``[start, stop)``, in chunks of ``chunk_samples``.
 
         Parameters
@@ -673,6 +715,8 @@ class DriveFile:
             Sample range (default: the whole file).
         quantity : str
             ``acceleration`` (g), ``velocity`` (m/s) or ``displacement`` (m).
+        channel : str, optional
+            A multi-channel drive's channel (default: the first).
 
         Yields
         ------
@@ -687,32 +731,76 @@ class DriveFile:
         if not 0 <= start <= stop <= self.samples:
             raise InputError(f"sample range [{start}, {stop}) must lie inside [0, {self.samples}]", str(self.path))
         column = self._column(quantity)
+        if self.channels:
+            column = self._channel_column(channel)
+        elif channel is not None:
+            raise InputError(f"has one channel; there is no channel {channel!r}", str(self.path))
         if self.format in ("wav", "flac"):
-            return self._finite(self._iter_audio(chunk, start, stop), start)
+            return self._finite(self._iter_audio(chunk, start, stop, column), start)
         if self.format == "npy":
             return self._finite(self._iter_npy(chunk, start, stop, column), start)
         return self._finite(self._iter_csv(chunk, start, stop, column), start)
+
+    def _channel_column(self, channel: str | None) -> int:
+        if channel is None:
+            return 0
+        if channel not in self.channels:
+            raise InputError(f"has no channel {channel!r}; channels: {', '.join(self.channels)}", str(self.path))
+        return self.channels.index(channel)
+
+    def iter_channels(self, chunk_samples: int = 65536, start: int = 0, stop: int | None = None) -> Iterator[np.ndarray]:
+        """Every channel of a multi-channel drive (g), samples ``[start, stop)``, in chunks of shape (m, channels).
+
+        A single-channel drive gives shape (m, 1) (its acceleration).
+
+        Examples
+        --------
+        >>> import tempfile, pathlib, numpy as np
+        >>> path = pathlib.Path(tempfile.mkdtemp()) / "d.npy"
+        >>> _ = write_drive(path, [np.ones((4, 2))], rate_hz=10.0, samples=4, channels=("x", "y"))
+        >>> next(open_drive(path).iter_channels()).shape
+        (4, 2)
+
+        References
+        ----------
+        See the module docstring.
+        """
+        chunk = int(chunk_samples)
+        if chunk < 1:
+            raise InputError(f"chunk size {chunk_samples!r} must be >= 1", "chunk_samples")
+        stop = self.samples if stop is None else int(stop)
+        start = int(start)
+        if not 0 <= start <= stop <= self.samples:
+            raise InputError(f"sample range [{start}, {stop}) must lie inside [0, {self.samples}]", str(self.path))
+        if not self.channels:
+            return (c[:, None] for c in self.iter_chunks(chunk, start, stop))
+        if self.format in ("wav", "flac"):
+            return self._finite(self._iter_audio(chunk, start, stop, None), start)
+        if self.format == "npy":
+            return self._finite(self._iter_npy(chunk, start, stop, None), start)
+        return self._finite(self._iter_csv(chunk, start, stop, None), start)
 
     def _finite(self, chunks: Iterator[np.ndarray], start: int) -> Iterator[np.ndarray]:
         position = start
         for values in chunks:
             finite = np.isfinite(values)
             if not finite.all():
-                bad = int(np.argmin(finite))
+                bad = int(np.argmin(finite.reshape(finite.shape[0], -1).all(axis=1)))
                 raise InputError(
-                    f"sample {position + bad} is {float(values[bad])!r}, not a finite number; a drive file holds finite values",
+                    f"sample {position + bad} is {values[bad]!r}, not a finite number; a drive file holds finite values",
                     str(self.path),
                 )
-            position += values.size
+            position += values.shape[0]
             yield values
 
-    def read(self, start: int = 0, stop: int | None = None, quantity: str = "acceleration") -> np.ndarray:
-        """The values of one quantity, samples ``[start, stop)``, as one float64 array."""
-        parts = list(self.iter_chunks(1 << 20, start, stop, quantity))
+    def read(self, start: int = 0, stop: int | None = None, quantity: str = "acceleration",
+             channel: str | None = None) -> np.ndarray:
+        """The values of one quantity (or channel), samples ``[start, stop)``, as one float64 array."""
+        parts = list(self.iter_chunks(1 << 20, start, stop, quantity, channel))
         return np.concatenate(parts) if parts else np.zeros(0)
 
-    def _iter_audio(self, chunk: int, start: int, stop: int) -> Iterator[np.ndarray]:
-        return wavflac.iter_chunks(self.path, self.format, chunk, start, stop, self.samples, self.scale)
+    def _iter_audio(self, chunk: int, start: int, stop: int, column: int | None = 0) -> Iterator[np.ndarray]:
+        return wavflac.iter_chunks(self.path, self.format, chunk, start, stop, self.samples, self.scale, column)
 
     def _iter_npy(self, chunk: int, start: int, stop: int, column: int) -> Iterator[np.ndarray]:
         return npyarray.iter_chunks(self.path, self._data_offset, self._dtype, self._columns_in_file, column, chunk,
@@ -784,8 +872,9 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
                 raise InputError(f"given {what} {value:g} disagrees with the sidecar's {float(recorded):g}", side, key)
     offset, width, dtype = 0, 1, "<f8"
     names = None
+    channels = tuple(c["name"] for c in sidecar.channels) if sidecar is not None and sidecar.channels else ()
     if file_format in ("wav", "flac"):
-        header_rate, count, subtype = wavflac.read_header(path, file_format)
+        header_rate, count, subtype = wavflac.read_header(path, file_format, max(len(channels), 1))
         if rate_hz is not None and float(rate_hz) != header_rate:
             raise InputError(f"given rate {float(rate_hz):g} Hz disagrees with the file header's {header_rate:g} Hz", where)
         rate = header_rate
@@ -818,7 +907,17 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
             rate = float(rate_hz)
         scale_value = float(scale) if scale is not None else 1.0
     recorded_columns = list(sidecar.columns) if sidecar is not None else []
-    if file_format == "csv":
+    if channels:
+        expected = len(channels) + (1 if file_format == "csv" else 0)
+        held = width if file_format != "wav" and file_format != "flac" else len(channels)
+        if held != expected:
+            raise InputError(f"sidecar lists {len(channels)} channels but the file holds {held} data columns", side,
+                             "channels")
+        if file_format == "csv" and names[1:] != recorded_columns[1:]:
+            raise InputError(f"header {','.join(names)} does not name the sidecar's channel columns "
+                             f"{','.join(recorded_columns)}", where)
+        quantities = ("acceleration",)
+    elif file_format == "csv":
         quantities = _quantities_from_names(names[1:], where)
         width = len(names)
     elif file_format == "npy":
@@ -847,6 +946,7 @@ def open_drive(path, rate_hz: float | None = None, scale: float | None = None) -
         sidecar=sidecar,
         ramp_in_s=sidecar.ramp_in_s if sidecar is not None else 0.0,
         ramp_out_s=sidecar.ramp_out_s if sidecar is not None else 0.0,
+        channels=channels,
         _data_offset=offset,
         _columns_in_file=width,
         _dtype=dtype,

@@ -113,9 +113,9 @@ def read_header(path: Path) -> tuple[int, int, str, int]:
     return int(shape[0]), (1 if len(shape) == 1 else int(shape[1])), numpy_dtype.str, offset
 
 
-def iter_chunks(path: Path, offset: int, dtype: str, width: int, column: int, chunk: int, start: int, stop: int,
+def iter_chunks(path: Path, offset: int, dtype: str, width: int, column: int | None, chunk: int, start: int, stop: int,
                 samples: int, scale: float) -> Iterator[np.ndarray]:
-    """Values of one column, rows ``[start, stop)``, in chunks (float64, shape (m,)), read in constant memory.
+    """Values of one column (None: all, shape (m, width)), rows ``[start, stop)``, in chunks (float64), in constant memory.
 
     Examples
     --------
@@ -140,4 +140,5 @@ def iter_chunks(path: Path, offset: int, dtype: str, width: int, column: int, ch
                 raise InputError(f"ends after about {position + data.size // width} samples, expected {samples}",
                                  str(path))
             position += count
-            yield data.reshape(count, width)[:, column].astype(np.float64) * scale
+            table = data.reshape(count, width)
+            yield (table if column is None else table[:, column]).astype(np.float64) * scale

@@ -18,7 +18,15 @@ Layout (schema version :data:`SCHEMA_VERSION`)::
     plan {mode, frame_length_samples, line_spacing_hz, grms_lines_g, seed_derivation, spill_highpass},
     profile {name, description, source, breakpoints [{frequency_hz, asd_g2_per_hz}],
              grms_g, velocity_rms_m_s, displacement_rms_m, displacement_peak_to_peak_3sigma_m},
-    transform, compensation (non-Gaussian drives; else null), warnings, tool
+    transform, compensation (non-Gaussian drives; else null), warnings, tool,
+    channels (multi-channel drives: [{name, column, scale, unit, peak_g, profile}]; else null),
+    pairs (multi-channel drives: [{channels, frequency_hz, coherence, phase_deg}]; else null)
+
+A multi-channel drive has one data column per channel (a .wav/.flac channel,
+a .csv column ``NAME_g``, a .npy column); .wav/.flac files have one full scale
+for all channels (``scale``, repeated in each channel's entry).  Its top-level
+``profile`` is the planning envelope (every channel's band and breakpoints,
+the channels' ASDs summed); each channel's own target is ``channels[i].profile``.
 
 The reader also accepts the layout written by version 0.1 (``sidecar_version``
 1, flat plan keys, ``breakpoints`` of ``{frequency, asd}``) and converts it.
@@ -69,6 +77,21 @@ def sidecar_path(path) -> Path:
     """
     path = Path(path)
     return path.with_name(path.name + ".json")
+
+
+def channel_column_name(name: str) -> str:
+    """The data column of a channel: its name with the unit suffix ``_g``.
+
+    Examples
+    --------
+    >>> channel_column_name("x")
+    'x_g'
+
+    References
+    ----------
+    The unit-suffix rule of the sidecar (see the module docstring).
+    """
+    return f"{name}_g"
 
 
 def profile_block(profile, source: str | None) -> dict:
@@ -135,6 +158,14 @@ class Sidecar:
     warnings : tuple of str
     tool : dict or None
         Name and versions of the writing software.
+    channels : tuple of dict or None
+        A multi-channel drive's channels, in column order: ``name``,
+        ``column``, ``scale`` (g of sample 1.0), ``unit``, ``peak_g``,
+        ``profile`` (that channel's target); None for a single channel.
+    pairs : tuple of dict or None
+        A multi-channel drive's specified pairs: ``channels`` [a, b],
+        ``frequency_hz``, ``coherence`` (ordinary, 0..1), ``phase_deg`` (angle of
+        ``G_ab = E[conj(A) B]``); None for a single channel.
     schema_version : int
     legacy : bool
         Read from an earlier layout (not written).
@@ -172,6 +203,8 @@ class Sidecar:
     compensation: dict | None = None
     warnings: tuple = ()
     tool: dict | None = None
+    channels: tuple | None = None
+    pairs: tuple | None = None
     schema_version: int = SCHEMA_VERSION
     legacy: bool = field(default=False, compare=False)
 
@@ -184,7 +217,7 @@ class Sidecar:
 
     # ------------------------------------------------------------ building
     def with_file(self, *, scale: float, rate: float, samples: int, file_format: str, subtype: str, quantities,
-                  peak_g: float, tool: dict | None = None) -> "Sidecar":
+                  peak_g: float, tool: dict | None = None, channel_peaks_g=None) -> "Sidecar":
         """This sidecar completed with what the writer knows (scale, rate, samples, format, columns, peak).
 
         Examples
@@ -197,6 +230,17 @@ class Sidecar:
         ----------
         See the module docstring.
         """
+        if self.channels:
+            names = tuple(channel_column_name(c["name"]) for c in self.channels)
+            peaks = list(channel_peaks_g) if channel_peaks_g is not None else [None] * len(names)
+            channels = tuple({**c, "column": name, "scale": float(scale), "unit": "g", "peak_g": peak}
+                             for c, name, peak in zip(self.channels, names, peaks))
+            return dataclasses.replace(
+                self, scale=float(scale), rate=float(rate), samples=int(samples), format=file_format, subtype=subtype,
+                columns=(("time_s",) if file_format == "csv" else ()) + names,
+                units={name: "g" for name in names}, peak_g=float(peak_g), channels=channels,
+                tool=self.tool if self.tool is not None else tool,
+            )
         names = tuple(COLUMN_NAMES[q] for q in quantities)
         return dataclasses.replace(
             self, scale=float(scale), rate=float(rate), samples=int(samples), format=file_format, subtype=subtype,
@@ -242,6 +286,8 @@ class Sidecar:
             "compensation": self.compensation,
             "warnings": list(self.warnings),
             "tool": self.tool,
+            "channels": None if self.channels is None else [dict(c) for c in self.channels],
+            "pairs": None if self.pairs is None else [dict(p) for p in self.pairs],
         }
 
     @classmethod
@@ -299,6 +345,8 @@ class Sidecar:
             warnings=tuple(str(w) for w in data.get("warnings") or () if isinstance(w, str))
             if isinstance(data.get("warnings"), list) else (),
             tool=data.get("tool") if isinstance(data.get("tool"), dict) else None,
+            channels=tuple(data["channels"]) if isinstance(data.get("channels"), list) else None,
+            pairs=tuple(data["pairs"]) if isinstance(data.get("pairs"), list) else None,
             legacy=legacy,
         )
 
@@ -468,6 +516,14 @@ def _validate(data: dict, side: str) -> None:
             raise InputError(f"{key} must be {what}, got {data[key]!r:.40}", side, key)
     if data.get("columns") is not None and not all(isinstance(name, str) for name in data["columns"]):
         raise InputError("columns must be a list of column names (text)", side, "columns")
+    channels = data.get("channels")
+    if channels is not None:
+        if (not isinstance(channels, list) or len(channels) < 2
+                or not all(isinstance(c, dict) and isinstance(c.get("name"), str) for c in channels)):
+            raise InputError("channels must be null or a list of two or more objects with a 'name'", side, "channels")
+        names = [c["name"] for c in channels]
+        if len(set(names)) != len(names):
+            raise InputError(f"channel names {names!r} must be unique", side, "channels")
     for key in ("kurtosis", "skewness", "clip"):
         value = (data.get("options") or {}).get(key)
         if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))
@@ -517,4 +573,5 @@ def _from_layout_0_1(data: dict) -> dict:
     return new
 
 
-__all__ = ["COMPENSATION_REPORT_KEYS", "SCHEMA_VERSION", "Sidecar", "profile_block", "sidecar_path"]
+__all__ = ["COMPENSATION_REPORT_KEYS", "SCHEMA_VERSION", "Sidecar", "channel_column_name", "profile_block",
+           "sidecar_path"]

@@ -125,12 +125,14 @@ class AudioWriter:
     See the module docstring.
     """
 
-    def __init__(self, temporary: Path, where: str, file_format: str, subtype: str, rate_hz: float, scale: float):
+    def __init__(self, temporary: Path, where: str, file_format: str, subtype: str, rate_hz: float, scale: float,
+                 channels: int = 1):
         self.temporary, self.where, self.format, self.subtype = Path(temporary), where, file_format, subtype
         self.rate_hz, self.scale = float(rate_hz), float(scale)
+        self.channels = int(channels)
         try:
             self._handle = soundfile.SoundFile(
-                str(self.temporary), mode="w", samplerate=int(round(self.rate_hz)), channels=1,
+                str(self.temporary), mode="w", samplerate=int(round(self.rate_hz)), channels=int(channels),
                 subtype=SOUNDFILE_SUBTYPE[subtype], format=file_format.upper(),
             )
         except (RuntimeError, soundfile.LibsndfileError, ValueError) as error:
@@ -140,7 +142,8 @@ class AudioWriter:
         over = np.flatnonzero(~(np.abs(normalised) <= limit))
         if over.size:
             index = int(over[0])
-            value = float(values[index])
+            value = float(values.flat[index])
+            index //= max(values.size // max(values.shape[0], 1), 1)
             raise InputError(
                 f"sample {written + index} is {value:.6g} g, beyond the full scale of {self.scale:.6g} g; "
                 "raise the full scale (or let it follow the record's peak) - samples are never clipped",
@@ -148,8 +151,8 @@ class AudioWriter:
             )
 
     def write(self, values: np.ndarray, written: int) -> None:
-        """Append physical values (g), shape (m, 1); ``written`` samples came before (for messages)."""
-        values = values[:, 0]
+        """Append physical values (g), shape (m, channels); ``written`` samples came before (for messages)."""
+        values = values[:, 0] if self.channels == 1 else np.ascontiguousarray(values)
         with np.errstate(over="ignore"):  # a value beyond full scale is refused just below
             if self.subtype == "float":
                 normalised = (values / self.scale).astype(np.float32)
@@ -211,8 +214,8 @@ def zero_peak_time_stamp(path: Path) -> None:
             position += 8 + size + size % 2
 
 
-def read_header(path: Path, file_format: str) -> tuple[float, int, str]:
-    """Sample rate (Hz), sample count and sample format of a mono .wav/.flac file.
+def read_header(path: Path, file_format: str, channels: int = 1) -> tuple[float, int, str]:
+    """Sample rate (Hz), sample count and sample format of a .wav/.flac file of ``channels`` channels (default mono).
 
     Examples
     --------
@@ -231,16 +234,19 @@ def read_header(path: Path, file_format: str) -> tuple[float, int, str]:
         info = soundfile.info(str(path))
     except (RuntimeError, soundfile.LibsndfileError) as error:
         raise InputError(f"cannot read as .{file_format}: {error}", where) from None
-    if info.channels != 1:
-        raise InputError(f"has {info.channels} channels; a drive file has one", where)
+    if info.channels != int(channels):
+        if int(channels) == 1:
+            raise InputError(f"has {info.channels} channels; a drive file has one (a multi-channel drive needs its "
+                             "sidecar, which names the channels)", where)
+        raise InputError(f"has {info.channels} channels; its sidecar lists {int(channels)}", where)
     subtype = {"FLOAT": "float", "DOUBLE": "float", "PCM_24": "pcm24", "PCM_16": "pcm16"}.get(
         info.subtype, info.subtype.lower())
     return float(info.samplerate), int(info.frames), subtype
 
 
 def iter_chunks(path: Path, file_format: str, chunk: int, start: int, stop: int, samples: int,
-                scale: float) -> Iterator[np.ndarray]:
-    """Physical values (g) of samples ``[start, stop)`` in chunks (float64, shape (m,)).
+                scale: float, column: int | None = 0) -> Iterator[np.ndarray]:
+    """Physical values (g) of samples ``[start, stop)`` in chunks (float64, shape (m,); column None: (m, channels)).
 
     Examples
     --------
@@ -272,4 +278,4 @@ def iter_chunks(path: Path, file_format: str, chunk: int, start: int, stop: int,
             if data.shape[0] != count:
                 raise InputError(f"ends after {position + data.shape[0]} samples, expected {samples}", str(path))
             position += count
-            yield data[:, 0] * scale
+            yield (data if column is None else data[:, column]) * scale

@@ -98,20 +98,57 @@ def parse_toml_profile(text: str, source: str = "<toml>") -> AsdProfile:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise InputError(f"not valid TOML ({error})", source) from None
+    if "channels" in data:
+        raise InputError(
+            "a multi-channel profile ([[channels]]); read it with vibsynth.profile.multichannel.read_any_profile",
+            source, "channels",
+        )
+    return profile_from_table(data, source)
+
+
+def profile_from_table(data: dict, source: str = "<toml>", prefix: str = "", allowed=_TOP_KEYS) -> AsdProfile:
+    """An :class:`AsdProfile` from a parsed TOML table (the keys of the module docstring).
+
+    Parameters
+    ----------
+    data : dict
+        The parsed table (``breakpoints``, ``unit``, ``level_db``, ``grms``, ...).
+    source : str
+        File name for error messages.
+    prefix : str
+        Location of the table inside the file (e.g. ``"channels[2]."``), for messages.
+    allowed : sequence of str
+        Keys the table may hold.
+
+    Returns
+    -------
+    AsdProfile
+        ASD in g^2/Hz.
+
+    Examples
+    --------
+    >>> table = {"breakpoints": [{"frequency": 20, "asd": 0.01}, {"frequency": 2000, "asd": 0.01}]}
+    >>> round(profile_from_table(table).grms, 3)  # sqrt(0.01 x 1980)
+    4.45
+
+    References
+    ----------
+    TOML v1.0.0 (toml.io); log-log breakpoint tables with dB/octave slopes.
+    """
     for key in data:
-        if key not in _TOP_KEYS:
-            raise InputError(f"unknown key '{key}'; {_suggest(key, _TOP_KEYS)}", source, key)
+        if key not in allowed:
+            raise InputError(f"unknown key '{key}'; {_suggest(key, allowed)}", source, prefix + key)
     points = data.get("breakpoints")
     if points is None:
-        raise InputError("no [[breakpoints]] table; add at least two breakpoints", source)
+        raise InputError("no [[breakpoints]] table; add at least two breakpoints", source, prefix.rstrip(".") or None)
     if not isinstance(points, list) or not all(isinstance(p, dict) for p in points):
-        raise InputError("'breakpoints' must be an array of tables ([[breakpoints]])", source, "breakpoints")
+        raise InputError("'breakpoints' must be an array of tables ([[breakpoints]])", source, prefix + "breakpoints")
     if len(points) < 2:
-        raise InputError(f"a profile needs at least two breakpoints, got {len(points)}", source, "breakpoints")
-    factor = _unit_factor(data.get("unit", "g^2/Hz"), source, "unit")
+        raise InputError(f"a profile needs at least two breakpoints, got {len(points)}", source, prefix + "breakpoints")
+    factor = _unit_factor(data.get("unit", "g^2/Hz"), source, prefix + "unit")
     triples = []
     for index, point in enumerate(points):
-        location = f"breakpoints[{index + 1}]"
+        location = f"{prefix}breakpoints[{index + 1}]"
         for key in point:
             if key not in _POINT_KEYS:
                 raise InputError(f"unknown key '{key}'; {_suggest(key, _POINT_KEYS)}", source, location)
@@ -132,9 +169,9 @@ def parse_toml_profile(text: str, source: str = "<toml>") -> AsdProfile:
     if "level_db" in data and "grms" in data:
         raise InputError("give 'level_db' or 'grms', not both", source)
     if "level_db" in data:
-        profile = profile.scaled_db(_number(data["level_db"], source, "level_db", "level_db (dB)"))
+        profile = profile.scaled_db(_number(data["level_db"], source, prefix + "level_db", "level_db (dB)"))
     if "grms" in data:
-        profile = profile.scaled_to_grms(_number(data["grms"], source, "grms", "grms (g)"))
+        profile = profile.scaled_to_grms(_number(data["grms"], source, prefix + "grms", "grms (g)"))
     return profile
 
 
