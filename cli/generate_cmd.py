@@ -25,7 +25,7 @@ from vibsynth.cli.common import (
     warn,
 )
 from vibsynth.cli import types
-from vibsynth.cli.common import DRIVE_CAUTION
+from vibsynth.cli.common import DRIVE_CAUTION, amplitude_options
 
 #: Records longer than this many samples show a progress bar (on a terminal).
 PROGRESS_MIN_SAMPLES = 1 << 21
@@ -83,7 +83,7 @@ clip_option = options.clip
 @options.quiet
 def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms, level_db,
              kurtosis, skewness, clip, resolution, loop, quantities, subtype, full_scale_g, memory_budget_mb, inch,
-             as_json, command_quiet):
+             as_json, command_quiet, kurtosis_model=None, burst_s=None):
     """Write a drive time history whose spectrum is PROFILE's: Gaussian, or with a kurtosis, skewness or clip level.
 
     Random phases on an inverse-FFT frequency grid: one periodic record when it
@@ -134,9 +134,7 @@ def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_li
         memory_budget_mb=memory_budget_mb,
         profile_source=str(profile),
         scaling={"grms": grms, "level_db": level_db},
-        kurtosis=kurtosis,
-        skewness=skewness,
-        clip=clip,
+        **amplitude_options(profile, kurtosis, skewness, clip, kurtosis_model, burst_s),
     )
     prepared = drive_job.prepare_drive(target, request)
     for message in prepared.warnings:

@@ -18,7 +18,7 @@ Layout (schema version :data:`SCHEMA_VERSION`)::
     plan {mode, frame_length_samples, line_spacing_hz, grms_lines_g, seed_derivation, spill_highpass},
     profile {name, description, source, breakpoints [{frequency_hz, asd_g2_per_hz}],
              grms_g, velocity_rms_m_s, displacement_rms_m, displacement_peak_to_peak_3sigma_m},
-    transform, compensation (non-Gaussian drives; else null), warnings, tool
+    transform, compensation (non-Gaussian drives; else null), [modulation (burst model only)], warnings, tool
 
 The reader also accepts the layout written by version 0.1 (``sidecar_version``
 1, flat plan keys, ``breakpoints`` of ``{frequency, asd}``) and converts it.
@@ -132,6 +132,9 @@ class Sidecar:
     options, plan, profile, transform, compensation : dict or None
         The request, the plan's decisions, the target, the non-Gaussian
         transform and its spectral compensation.
+    modulation : dict or None
+        The burst model's envelope (model, kurtosis, ``burst_s`` time scale,
+        ...); None for other drives (and the key is then left out).
     warnings : tuple of str
     tool : dict or None
         Name and versions of the writing software.
@@ -170,6 +173,7 @@ class Sidecar:
     profile: dict | None = None
     transform: dict | None = None
     compensation: dict | None = None
+    modulation: dict | None = None
     warnings: tuple = ()
     tool: dict | None = None
     schema_version: int = SCHEMA_VERSION
@@ -218,7 +222,7 @@ class Sidecar:
         ----------
         RFC 8259.
         """
-        return {
+        data = {
             "schema_version": SCHEMA_VERSION,
             "unit": self.unit,
             "scale": self.scale,
@@ -243,6 +247,9 @@ class Sidecar:
             "warnings": list(self.warnings),
             "tool": self.tool,
         }
+        if self.modulation is not None:  # only burst-model drives carry it (older readers never see the key)
+            data["modulation"] = self.modulation
+        return data
 
     @classmethod
     def from_dict(cls, data, where: str = "sidecar") -> "Sidecar":
@@ -296,6 +303,7 @@ class Sidecar:
             profile=data.get("profile"),
             transform=data.get("transform") if isinstance(data.get("transform"), dict) else None,
             compensation=data.get("compensation") if isinstance(data.get("compensation"), dict) else None,
+            modulation=data.get("modulation") if isinstance(data.get("modulation"), dict) else None,
             warnings=tuple(str(w) for w in data.get("warnings") or () if isinstance(w, str))
             if isinstance(data.get("warnings"), list) else (),
             tool=data.get("tool") if isinstance(data.get("tool"), dict) else None,
@@ -468,6 +476,13 @@ def _validate(data: dict, side: str) -> None:
             raise InputError(f"{key} must be {what}, got {data[key]!r:.40}", side, key)
     if data.get("columns") is not None and not all(isinstance(name, str) for name in data["columns"]):
         raise InputError("columns must be a list of column names (text)", side, "columns")
+    modulation = data.get("modulation")
+    if modulation is not None:
+        if not isinstance(modulation, dict):
+            raise InputError(f"modulation must be a JSON object or absent, got {modulation!r:.40}", side, "modulation")
+        burst = modulation.get("burst_s")
+        if isinstance(burst, bool) or not isinstance(burst, (int, float)) or not math.isfinite(burst) or burst <= 0:
+            raise InputError(f"burst_s {burst!r:.40} must be a duration > 0 s", side, "modulation.burst_s")
     for key in ("kurtosis", "skewness", "clip"):
         value = (data.get("options") or {}).get(key)
         if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))
