@@ -74,13 +74,16 @@ def format_derived(result, profile_path: str | None) -> str:
 @click.option("-o", "--output", "output", type=click.Path(dir_okay=False), default=None, metavar="FILE",
               help="Write the fitted profile to FILE (.toml, with an [amplitude] table that `vibsynth generate` "
                    "uses as its defaults).")
+@click.option("--drive", "drive_file", type=click.Path(dir_okay=False), default=None, metavar="FILE",
+              help="A drive file made for this recording: its response kurtosis on the same natural frequencies is "
+                   "reported and plotted beside the recording's (does the drive's peakiness survive the resonances?).")
 @click.option("--report", "report_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
               help="Write derive.json and figures (measured ASD with the fit; response kurtosis) into DIR.")
 @options.json_output.but(help="Print the result as JSON (keys: grms, kurtosis, skewness, stationary, profile_path, "
                               "and the rest with units).")
 @options.quiet
 def derive(recording, rate, scale, points, method, margin_db, band_hz, q, output, report_dir, as_json,
-           command_quiet):
+           command_quiet, drive_file=None):
     """Measure a RECORDING and fit a test profile to it: ASD breakpoints plus its amplitude statistics.
 
     Reads the recording (.wav/.flac/.csv/.npy, with or without a sidecar) in
@@ -111,6 +114,7 @@ def derive(recording, rate, scale, points, method, margin_db, band_hz, q, output
         if not destination.parent.exists():
             raise InputError("folder does not exist; create it first", str(destination.parent))
     drive = open_drive(recording, rate_hz=rate, scale=scale)
+    compared = open_drive(drive_file) if drive_file is not None else None  # checked before anything is written
     result = derive_record(drive, band_hz=band_hz, points=points, method=method, margin_db=margin_db, q=q,
                            chunk_samples=READ_CHUNK_SAMPLES)
     profile_path = None
@@ -125,11 +129,23 @@ def derive(recording, rate, scale, points, method, margin_db, band_hz, q, output
         profile_path = str(destination)
         note(f"wrote {destination}")
     data = result.to_dict(profile_path)
+    drive_response = None
+    if drive_file is not None:
+        from vibsynth.analysis.derive import response_kurtosis_spectrum
+
+        start, stop = compared.steady_range
+        drive_response = response_kurtosis_spectrum(compared.iter_chunks(READ_CHUNK_SAMPLES, start, stop),
+                                                    compared.rate_hz, result.response.fn_hz, q)
+        data["drive_response_kurtosis"] = {"drive": str(drive_file), **drive_response.to_dict()}
     if report_dir is not None:
         from vibsynth.analysis.derive_figures import write_derive_report
 
-        data["report_files"] = write_derive_report(result, Path(report_dir), data)
+        data["report_files"] = write_derive_report(result, Path(report_dir), data, drive_response)
     if as_json:
         print_json(data)
     elif not quiet:
         click.echo(format_derived(result, profile_path))
+        if drive_response is not None:
+            click.echo(f"  drive {drive_file}: input kurtosis {drive_response.input_kurtosis:.3f}; response kurtosis "
+                       + ", ".join(f"{fn:.4g} Hz {k:.2f}" for fn, k in zip(drive_response.fn_hz,
+                                                                            drive_response.kurtosis)))

@@ -163,7 +163,7 @@ def default_response_grid(band_low_hz: float, band_high_hz: float, rate_hz: floa
 
     Examples
     --------
-    >>> default_response_grid(20.0, 2000.0, 5120.0, 3).round(1).tolist()
+    >>> default_response_grid(20.0, 2000.0, 10240.0, 3).round(1).tolist()
     [20.0, 200.0, 2000.0]
 
     References

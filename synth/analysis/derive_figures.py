@@ -112,7 +112,7 @@ def response_kurtosis_figure(series, title: str = "Response kurtosis") -> Figure
     return figure
 
 
-def write_derive_report(result, folder: Path, data: dict) -> dict:
+def write_derive_report(result, folder: Path, data: dict, drive_response=None) -> dict:
     """Write derive.json, derive-asd.png and response-kurtosis.png into ``folder`` (created if missing).
 
     Parameters
@@ -122,6 +122,8 @@ def write_derive_report(result, folder: Path, data: dict) -> dict:
         Destination folder; its parent must exist.
     data : dict
         The JSON to write as derive.json.
+    drive_response : ResponseKurtosis, optional
+        A drive's response kurtosis on the same natural frequencies, plotted beside the recording's.
 
     Returns
     -------
@@ -143,9 +145,9 @@ def write_derive_report(result, folder: Path, data: dict) -> dict:
     if not folder.parent.exists():
         raise InputError("folder's parent does not exist; create it first", str(folder))
     folder.mkdir(exist_ok=True)
+    series = [("recording", result.response)] + ([("drive", drive_response)] if drive_response is not None else [])
     figures = {"asd": derive_asd_figure(result),
-               "response_kurtosis": response_kurtosis_figure([("recording", result.response)],
-                                                             f"{Path(result.source).name}: response kurtosis")}
+               "response_kurtosis": response_kurtosis_figure(series, f"{Path(result.source).name}: response kurtosis")}
     names = {"asd": "derive-asd.png", "response_kurtosis": "response-kurtosis.png"}
     pending, written = [], {}
     try:

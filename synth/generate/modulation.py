@@ -75,6 +75,15 @@ MODULATION_STREAM = 2
 MAX_BURST_KURTOSIS = 30.0
 
 
+def _interpolated_means(a: np.ndarray) -> tuple[float, float]:
+    """Mean of ``y^2`` and ``y^4`` over the straight lines through successive knot values ``a`` (exact)."""
+    p, q = a[:-1], a[1:]
+    p2, q2 = p * p, q * q
+    m2 = float(np.mean(p2 + p * q + q2)) / 3.0
+    m4 = float(np.mean(p2 * p2 + p2 * p * q + p2 * q2 + p * q * q2 + q2 * q2)) / 5.0
+    return m2, m4
+
+
 def default_burst_s(band_low_hz: float, q: float = DEFAULT_RESONANCE_Q) -> float:
     """Default burst duration: :data:`BURST_DECAY_MULTIPLE` decay times of a Q resonance at the lowest band frequency, s.
 
@@ -215,25 +224,24 @@ class BurstEnvelope:
         kernel = np.exp(-0.5 * (np.arange(-half, half + 1) / sd) ** 2)
         kernel /= math.sqrt(float(np.sum(kernel**2)))
         g = np.convolve(white, kernel, mode="valid")  # unit variance in the ensemble
-        inside = g[margin : margin + int(math.ceil(self.total_samples / step))]
-        sigma = self._realised_sigma(inside - float(np.mean(inside)))
-        log_a = sigma * (g - float(np.mean(inside)))
-        level = 0.5 * math.log(float(np.mean(np.exp(2.0 * log_a[margin : margin + inside.size]))))
+        inside = g[margin : margin + int(math.ceil(self.total_samples / step)) + 1]
+        centre = float(np.mean(inside))
+        sigma = self._realised_sigma(inside - centre)
+        log_a = sigma * (g - centre)
+        level = 0.5 * math.log(_interpolated_means(np.exp(log_a[margin : margin + inside.size]))[0])
         return np.exp(log_a - level), float(margin), step
 
     def _realised_sigma(self, g: np.ndarray) -> float:
-        """sigma with ``mean(exp(4 sigma g)) / mean(exp(2 sigma g))^2 = kurtosis / 3`` over the record's knots."""
+        """sigma with ``mean(a^4) / mean(a^2)^2 = kurtosis / 3`` for ``a = exp(sigma g)`` interpolated linearly."""
         from scipy.optimize import brentq
 
         target = math.log(self.kurtosis / 3.0)
+        shift = float(np.max(g))
 
         def excess(sigma):
-            def log_mean_exp(k):
-                z = k * sigma * g
-                top = float(np.max(z))
-                return top + math.log(float(np.mean(np.exp(z - top))))
-
-            return log_mean_exp(4.0) - 2.0 * log_mean_exp(2.0) - target
+            a = np.exp(sigma * (g - shift))  # scaled to stay finite; the ratio does not depend on the scale
+            m2, m4 = _interpolated_means(a)
+            return math.log(m4) - 2.0 * math.log(m2) - target
 
         hi = 2.0 * self.log_sigma
         while excess(hi) < 0:
