@@ -179,6 +179,14 @@ def test_cli_records_the_envelope_and_reads_an_amplitude_table(tmp_path, capsys)
     assert status == 0, out
     stationarity = [c for c in report["criteria"] if c["name"] == "stationarity"][0]
     assert stationarity["pass"] and "measured_reverse_arrangements" in stationarity
+    # ... and reports the response kurtosis of a non-Gaussian drive: the bursts survive the resonances
+    # (product model with a slow envelope, Kihm, Rizzi, Ferguson & Halfpenny 2013)
+    assert np.median(report["response_kurtosis"]["kurtosis"]) > 4.0
+    # a Gaussian drive reports none
+    status, out, err = _main(capsys, "generate", "parcel-conveyor", "-o", tmp_path / "g.npy", "--duration", 20,
+                             "--rate", 2560, "--seed", 2)
+    status, out, err = _main(capsys, "verify", tmp_path / "g.npy", "--json")
+    assert "response_kurtosis" not in json.loads(out)
 
 
 def test_cli_refuses_a_burst_model_without_kurtosis_in_one_line(tmp_path, capsys):
