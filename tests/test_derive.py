@@ -190,3 +190,15 @@ def test_clipped_flat_tops_are_a_warning(tmp_path, capsys):
     assert status == 0, err
     warning = [line for line in err.splitlines() if "flat tops" in line]
     assert len(warning) == 1 and "understate" in warning[0]
+
+
+def test_a_transformed_record_is_not_mistaken_for_bursts(tmp_path):
+    # a memoryless transform puts its peaks in single samples: no burst time scale, the transform model,
+    # and a response that is nearly Gaussian again (Kihm, Rizzi, Ferguson & Halfpenny 2013)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", VibsynthWarning)
+        x = generate_samples(ORIGINAL, 60.0, RATE, seed=35, kurtosis=5.0)
+    result = derive_record(open_drive(_recording(tmp_path, "transform.npy", x)), points=5)
+    assert result.kurtosis == pytest.approx(5.0, rel=0.10)
+    assert result.burst_s is None and result.amplitude_model == "transform"
+    assert np.median(result.response.kurtosis) < 3.5

@@ -97,7 +97,17 @@ class ReverseArrangements:
     stationary: bool
 
     def to_dict(self) -> dict:
-        """Plain JSON-ready values."""
+        """Plain JSON-ready values.
+
+        Examples
+        --------
+        >>> reverse_arrangements_test(np.arange(10.0)[::-1]).to_dict()["reverse_arrangements"]
+        45
+
+        References
+        ----------
+        Bendat & Piersol (2010), section 4.5.2.
+        """
         return {"windows": self.windows, "reverse_arrangements": self.count, "expected": self.expected,
                 "std": self.std, "limit_low": self.low, "limit_high": self.high,
                 "significance": self.significance, "p_value": self.p_value, "stationary": self.stationary}
