@@ -166,6 +166,34 @@ def load_profile(spec: str, grms: float | None = None, level_db: float | None = 
     return profile
 
 
+def amplitude_options(spec: str, kurtosis=None, skewness=None, clip=None, kurtosis_model=None, burst_s=None) -> dict:
+    """The non-Gaussian options of a drive: those given, else the profile file's ``[amplitude]`` table.
+
+    Any of --kurtosis, --skewness, --clip given: the table is not used (the
+    options describe the amplitude alone).  Otherwise the table's model,
+    kurtosis, skewness and burst_s are the defaults, and --kurtosis-model and
+    --burst override its model and burst duration.
+    """
+    chosen = {"kurtosis": kurtosis, "skewness": skewness, "clip": clip,
+              "kurtosis_model": kurtosis_model or "transform", "burst_s": burst_s}
+    if kurtosis is not None or skewness is not None or clip is not None or spec == STDIN:
+        return chosen
+    from vibsynth.profile.files import read_amplitude_section
+
+    table = read_amplitude_section(spec)
+    if table is None or table["model"] == "gaussian":
+        return chosen
+    model = kurtosis_model or table["model"]
+    chosen.update(kurtosis=table.get("kurtosis"), kurtosis_model=model)
+    if model == "bursts":
+        chosen["burst_s"] = burst_s if burst_s is not None else table.get("burst_s")
+    else:
+        chosen["skewness"] = table.get("skewness")
+    note(f"amplitude from {spec} [amplitude]: model {model}, kurtosis {chosen['kurtosis']:.3g}"
+         + (f", bursts of {chosen['burst_s']:.3g} s" if chosen.get("burst_s") else ""))
+    return chosen
+
+
 def warn(message: str) -> None:
     """One warning line on stderr (``vibsynth: warning: ...``), each distinct message once."""
     session().warn(message)

@@ -26,7 +26,7 @@ from vibsynth.cli.common import (
     warn,
 )
 from vibsynth.cli import types
-from vibsynth.cli.common import DRIVE_CAUTION
+from vibsynth.cli.common import DRIVE_CAUTION, amplitude_options
 
 #: Records of at least PROGRESS_MIN_SAMPLES samples show progress (a bar on a terminal, lines or --json events
 #: without); imported from :mod:`vibsynth.cli.common` and looked up here, so it can be changed per module.
@@ -94,7 +94,7 @@ clip_option = options.clip
 @options.quiet
 def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms, level_db,
              kurtosis, skewness, clip, resolution, loop, quantities, rest_taper_s, subtype, full_scale_g,
-             memory_budget_mb, dry_run, inch, as_json, command_quiet):
+             memory_budget_mb, dry_run, inch, as_json, command_quiet, kurtosis_model=None, burst_s=None):
     """Write a drive time history whose spectrum is PROFILE's: Gaussian, or with a kurtosis, skewness or clip level.
 
     Random phases on an inverse-FFT frequency grid: one periodic record when it
@@ -154,9 +154,7 @@ def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_li
         memory_budget_mb=memory_budget_mb,
         profile_source=str(profile),
         scaling={"grms": grms, "level_db": level_db},
-        kurtosis=kurtosis,
-        skewness=skewness,
-        clip=clip,
+        **amplitude_options(profile, kurtosis, skewness, clip, kurtosis_model, burst_s),
         rest_taper_s=rest_taper_s,
     )
     if dry_run:  # plan even when it will not fit, to say so

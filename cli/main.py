@@ -34,6 +34,11 @@ OPTION_NAMES = {
     "grms": "--grms",
     "grms_tolerance_percent": "--grms-tolerance",
     "kurtosis": "--kurtosis",
+    "kurtosis_model": "--kurtosis-model",
+    "burst_s": "--burst",
+    "band": "--band",
+    "points": "--points",
+    "margin_db": "--margin",
     "level_db": "--level-db",
     "loop": "--loop",
     "memory_budget_bytes": "--memory-budget",
@@ -127,10 +132,11 @@ def cli(ctx, quiet, verbose):
 
 def _register() -> None:
     """Add the commands in the order a user meets them (the main job first)."""
-    from vibsynth.cli import batch_cmd, generate_cmd, info_cmd, peaks_cmd, run_cmd, verify_cmd
+    from vibsynth.cli import batch_cmd, derive_cmd, generate_cmd, info_cmd, peaks_cmd, run_cmd, verify_cmd
     from vibsynth.cli import equivalent_cmd, fit_cmd, response_cmd, severity_cmd
 
-    for command in (run_cmd.run, info_cmd.info, generate_cmd.generate, verify_cmd.verify, peaks_cmd.peaks,
+    for command in (run_cmd.run, info_cmd.info, generate_cmd.generate, verify_cmd.verify, derive_cmd.derive,
+                    peaks_cmd.peaks,
                     response_cmd.response, severity_cmd.severity, equivalent_cmd.equivalent, fit_cmd.fit,
                     batch_cmd.batch, info_cmd.presets):
         cli.add_command(command)

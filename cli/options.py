@@ -102,9 +102,21 @@ clip = SharedOption(
          "stream is clipped and rescaled, its spectrum pre-compensated so the ASD still meets the target. "
          "Cannot be combined with --kurtosis/--skewness.")
 
+kurtosis_model = SharedOption(
+    "--kurtosis-model", type=click.Choice(["transform", "bursts"]), default=None,
+    help="How --kurtosis is reached: transform (default), a memoryless transform whose peaks sit in single "
+         "samples (a resonance averages them: its response is nearly Gaussian), or bursts, a slowly varying "
+         "random envelope times a Gaussian drive (x = a(t) u(t), kurtosis = 3 E[a^4]) whose peaks survive a "
+         "resonance, as field vibration's do. Default: the profile file's [amplitude] model, else transform.")
+burst = SharedOption(
+    "--burst", "burst_s", type=types.positive(), default=None, metavar="S",
+    help="Burst duration of --kurtosis-model bursts, s (the envelope's time scale; recorded in the sidecar). "
+         "Default: the profile file's [amplitude] burst_s, else 5 decay times of a Q = 10 resonance at the "
+         "profile's lowest frequency (16 / lowest frequency).")
+
 #: The drive options of `generate`, in help order; `run` applies the same objects (with defaults).
 DRIVE_OPTIONS = (duration, rate, seed, amplitude, ramp, stroke_limit, velocity_limit, grms, level_db,
-                 kurtosis, skewness, clip)
+                 kurtosis, skewness, clip, kurtosis_model, burst)
 
 # ------------------------------------------------------------------ verification (verify, run)
 tolerance = SharedOption(

@@ -10,6 +10,7 @@ from vibsynth._checks import default_rate_hz  # the one default-rate rule
 from vibsynth.cli import options
 from vibsynth.cli.common import (
     DRIVE_CAUTION,
+    amplitude_options,
     caution,
     check_limits_in_inches,
     is_quiet,
@@ -57,7 +58,7 @@ REPORT_FILES = ("profile.toml", "report.json", "report.pdf", "asd.png", "amplitu
 @options.quiet
 def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms,
         level_db, kurtosis, skewness, clip, overwrite, tolerance, grms_tolerance, min_fraction, resolution, dof, paper,
-        inch, as_json, command_quiet):
+        inch, as_json, command_quiet, kurtosis_model=None, burst_s=None):
     """The main job: generate a drive for PROFILE, verify it, write everything into one folder.
 
     PROFILE defaults to the bundled preset `parcel-conveyor` (invented demo
@@ -105,9 +106,7 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
             velocity_limit_m_s=velocity_limit,
             profile_source=spec,
             scaling={"grms": grms, "level_db": level_db},
-            kurtosis=kurtosis,
-            skewness=skewness,
-            clip=clip,
+            **amplitude_options(spec, kurtosis, skewness, clip, kurtosis_model, burst_s),
         ),
         tolerance_db=parse_tolerance(tolerance),  # checked before any work is done
         grms_tolerance_percent=grms_tolerance,

@@ -25,6 +25,35 @@ def format_compensation(block: dict) -> str:
     return f"  compensation  {text} (from the sidecar, non-Gaussian drive)"
 
 
+#: Natural frequencies of the response kurtosis a non-Gaussian drive's verification reports.
+RESPONSE_POINTS = 6
+
+
+def drive_response_kurtosis(drive, target):
+    """Response kurtosis (Q 10, relative displacement) over the band, for a non-Gaussian drive; else None.
+
+    A drive is non-Gaussian when its sidecar asks for a kurtosis, skewness or clip level, or records a
+    burst envelope. Reported, not judged: it shows whether the drive's peaks survive a resonance.
+    """
+    side = drive.sidecar
+    if side is None:
+        return None
+    asked = side.options or {}
+    if side.modulation is None and all(asked.get(key) is None for key in ("kurtosis", "skewness", "clip")):
+        return None
+    from vibsynth.analysis.derive import default_response_grid, response_kurtosis_spectrum
+
+    fn = default_response_grid(target.frequency_min_hz, target.frequency_max_hz, drive.rate_hz, RESPONSE_POINTS)
+    start, stop = drive.steady_range
+    return response_kurtosis_spectrum(drive.iter_chunks(READ_CHUNK_SAMPLES, start, stop), drive.rate_hz, fn)
+
+
+def format_response_kurtosis(response) -> str:
+    """One report line: the response kurtosis at each natural frequency (reported, not judged)."""
+    values = ", ".join(f"{fn:.4g} Hz {k:.2f}" for fn, k in zip(response.fn_hz, response.kurtosis))
+    return f"  response kurtosis  Q {response.q:g} oscillators (reported, not judged): {values}"
+
+
 def _db(value) -> str:
     return "-inf dB (no power)" if value is None else f"{value:+.2f} dB"
 
@@ -168,6 +197,9 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     if result.segment_message:
         warn(result.segment_message)
     data = jobs.verification_data(result, drive, str(file))
+    response = drive_response_kurtosis(drive, target)
+    if response is not None:
+        data["response_kurtosis"] = response.to_dict()
     compensation = data.get("compensation")
     if report_dir:
         level = None
@@ -181,6 +213,8 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
         click.echo(format_verification(result, Path(file).name))
         if compensation is not None:
             click.echo(format_compensation(compensation))
+        if response is not None:
+            click.echo(format_response_kurtosis(response))
         if report_dir:
             click.echo(f"  report       {report_dir}/ (report.pdf, asd.png, amplitude.png, excerpt.png, rms.png, verify.json)")
     click.get_current_context().exit(0 if result.passed else 1)

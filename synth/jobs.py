@@ -125,6 +125,11 @@ class DriveRequest:
     clip : float or None
         Crest factor limit: every sample within ``clip`` x the target g RMS
         (cannot be combined with ``kurtosis``/``skewness``).
+    kurtosis_model : {"transform", "bursts"}
+        How ``kurtosis`` is reached: a memoryless transform (default) or a
+        slowly varying burst envelope (:mod:`vibsynth.generate.modulation`).
+    burst_s : float or None
+        Burst duration of the burst model, s (None: from the profile).
     workers : int or None
         Threads that make overlap-add frames (None: :func:`default_workers`).
         The samples are the same whatever the number, so it is not recorded.
@@ -154,6 +159,8 @@ class DriveRequest:
     clip: float | None = None
     workers: int | None = None
     rest_taper_s: float | None = None
+    kurtosis_model: str = "transform"
+    burst_s: float | None = None
 
 
 @dataclass(frozen=True)
@@ -242,7 +249,9 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         )
     if request.full_scale_g is not None and file_format not in ("wav", "flac"):
         raise InputError(f"--full-scale applies to .wav/.flac; .{file_format} holds values in g", "--full-scale")
-    transform = plan_transform(request.kurtosis, request.skewness, request.clip)
+    bursts = pipeline.check_kurtosis_model(request.kurtosis_model, request.kurtosis, request.skewness, request.clip,
+                                           request.loop, request.burst_s)
+    transform = None if bursts else plan_transform(request.kurtosis, request.skewness, request.clip)
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
     # the option alone picks periodic vs overlap-add (the same samples on every machine); a periodic
     # record the machine cannot hold is refused by the planner.  Warnings are kept in plan.warnings.
@@ -273,6 +282,10 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     design = None
     if transform is not None:
         plan, design = nongaussian.make_nongaussian_plan(profile, plan, transform)
+    if bursts:
+        from vibsynth.generate.modulation import burst_plan
+
+        plan = burst_plan(plan, profile.frequency_min_hz, request.kurtosis, request.burst_s)
     seed = request.seed
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % 2**53)  # exact in any JSON reader
@@ -289,12 +302,16 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         "kurtosis": request.kurtosis,
         "skewness": request.skewness,
         "clip": request.clip,
+        "kurtosis_model": "bursts" if bursts else "transform",
+        "burst_s": plan.modulation.burst_s if bursts else None,
         **{_SCALING_KEYS.get(key, key): value for key, value in request.scaling.items()},
     }
     seed_derivation = (
         "numpy SeedSequence(seed) children: overlap-add frame j uses spawn_key (0, j), "
         "a periodic record spawn_key (1,); PCG64; one standard normal pair per line"
     )
+    if bursts:
+        seed_derivation += "; burst envelope from spawn_key (2,) (see modulation)"
     if plan.spill_highpass is not None and design is None:  # a non-Gaussian drive records it with its compensation
         seed_derivation += (
             f"; overlap-add: sample n is sample n + {plan.spill_highpass.half_length} of the windowed sum of frames, "
@@ -324,6 +341,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         profile=profile_block(profile, request.profile_source),
         transform=design.transform_block() if design is not None else None,
         compensation=design.compensation_record() if design is not None else None,
+        modulation=plan.modulation.to_dict() if bursts else None,
         warnings=tuple(plan.warnings),
         tool={"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__},
     )
@@ -458,6 +476,7 @@ def drive_criteria(drive, tolerance_db: tuple[float, float] = (-3.0, 3.0), grms_
         kurtosis_target=targets.get("kurtosis"),
         skewness_target=targets.get("skewness"),
         crest_factor_limit=targets.get("clip"),
+        burst_s=(drive.sidecar.modulation or {}).get("burst_s") if drive.sidecar is not None else None,
     )
 
 

@@ -86,6 +86,7 @@ def _check_naming_rule(data: dict, blocks=("options", "plan", "profile"), siblin
     ("g.flac", ("--ramp", "0.5")),
     ("three.csv", ("--quantities", "acceleration,velocity,displacement")),
     ("k.wav", ("--kurtosis", "5")),
+    ("b.npy", ("--kurtosis", "5", "--kurtosis-model", "bursts", "--burst", "0.2")),
 ])
 def test_written_sidecars_follow_the_schema_and_the_naming_rule(tmp_path, name, extra):
     path = tmp_path / name
@@ -98,7 +99,8 @@ def test_written_sidecars_follow_the_schema_and_the_naming_rule(tmp_path, name, 
     assert data["schema_version"] == 2 and data["duration_s"] == data["samples"] / data["rate"]
     # The dataclass reads back exactly what it wrote.
     assert Sidecar.from_dict(data).to_dict() == data
-    assert (data["transform"] is not None) == ("--kurtosis" in extra)
+    assert (data["transform"] is not None) == ("--kurtosis" in extra and "bursts" not in extra)
+    assert ("modulation" in data) == ("bursts" in extra)  # the burst model's envelope, recorded with its time scale
 
 
 def test_the_schema_refuses_a_renamed_or_misspelt_key(tmp_path):

@@ -15,7 +15,8 @@ import pytest
 
 import vibsynth
 
-ANALYSIS_MODULES = ("welch", "stats", "extremes", "verify", "figures", "record_input")
+ANALYSIS_MODULES = ("welch", "stats", "extremes", "verify", "figures", "record_input", "derive", "stationarity",
+                    "derive_figures")
 
 
 def _fresh(code: str) -> str:

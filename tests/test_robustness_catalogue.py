@@ -191,6 +191,14 @@ def _npy_nan(library, work):
     np.save(work / "hole.npy", data)
 
 
+def _short_recording(library, work):
+    np.save(work / "short.npy", np.random.default_rng(5).standard_normal(2048))
+
+
+def _constant_recording(library, work):
+    np.save(work / "flat.npy", np.full(40_000, 0.25))
+
+
 def _csv_broken_row(library, work):
     path = _copy_good(library, work, "csv", "drive")
     lines = path.read_text().splitlines(keepends=True)
@@ -310,6 +318,30 @@ CASES = [
          ("--kurtosiss", "No such option")),
     Case("missing-output-option", ("generate", "{profile}", "--duration", 10, "--rate", RATE),
          ("'-o' / '--output'", "Missing option")),
+    # ---------------------------------------------------------------- generate: the burst model
+    Case("bursts-without-kurtosis", GEN + OUT + ("--kurtosis-model", "bursts"),
+         ("--kurtosis", "needs a kurtosis target above 3")),
+    Case("bursts-below-three", GEN + OUT + ("--kurtosis", 2.5, "--kurtosis-model", "bursts"),
+         ("--kurtosis", "must be above 3", "transform model")),
+    Case("bursts-with-clip", GEN + OUT + ("--kurtosis", 5, "--kurtosis-model", "bursts", "--clip", 4),
+         ("--kurtosis-model", "drop skewness/clip")),
+    Case("bursts-with-loop", GEN + OUT + ("--kurtosis", 5, "--kurtosis-model", "bursts", "--loop"),
+         ("--kurtosis-model", "does not repeat seamlessly")),
+    Case("burst-without-the-burst-model", GEN + OUT + ("--kurtosis", 5, "--burst", 0.5),
+         ("--burst", "applies to the burst model")),
+    Case("burst-shorter-than-its-knots", GEN + OUT + ("--kurtosis", 5, "--kurtosis-model", "bursts", "--burst", 0.001),
+         ("--burst", "give at least")),
+    # ---------------------------------------------------------------- derive: recordings
+    Case("derive-too-short", ("derive", "{work}/short.npy", "--rate", RATE, "--band", 20, 2000),
+         ("{work}/short.npy", "too short for a lowest frequency of 20 Hz", "need at least"), _short_recording),
+    Case("derive-constant", ("derive", "{work}/flat.npy", "--rate", RATE, "-o", "{work}/p.toml"),
+         ("{work}/flat.npy", "is constant", "no vibration"), _constant_recording),
+    Case("derive-nan", ("derive", "{work}/hole.npy", "--rate", RATE, "-o", "{work}/p.toml"),
+         ("{work}/hole.npy", "sample 777", "not a finite number"), _npy_nan),
+    Case("derive-profile-not-toml", ("derive", "{work}/hole.npy", "--rate", RATE, "-o", "{work}/p.csv"),
+         ("{work}/p.csv", "written as TOML"), _npy_nan),
+    Case("derive-band-reversed", ("derive", "{work}/hole.npy", "--rate", RATE, "--band", 500, 20),
+         ("--band", "0 < LO < HI"), _npy_nan),
     # ---------------------------------------------------------------- verify: drive files
     Case("verify-missing-file", ("verify", "{work}/absent.flac"),
          ("{work}/absent.flac", "no such drive file")),

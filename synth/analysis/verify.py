@@ -122,6 +122,11 @@ class Criteria:
     gaussian : bool
         When no amplitude target is given, judge kurtosis, the share beyond
         3 sigma and the largest sample against Gaussian theory (default True).
+    burst_s : float or None
+        A burst-model drive's envelope time scale, s (from its sidecar): its
+        short-window RMS varies by design, so stationarity is judged instead
+        by the reverse-arrangements test (a trend test, Bendat & Piersol) on
+        the mean squares of windows of at least four burst durations.
     """
 
     tolerance_low_db: float = -3.0
@@ -140,6 +145,7 @@ class Criteria:
     false_alarm_probability: float = 1e-3
     stationarity: bool = True
     gaussian: bool = True
+    burst_s: float | None = None
 
     def __post_init__(self):
         low, high = self.tolerance_low_db, self.tolerance_high_db
@@ -237,7 +243,12 @@ class Criteria:
             "shows there (the target seen through the Hann window)"
         )
         rules["mean"] = f"|mean| at most {self.mean_limit_percent:g} % of the RMS"
-        if self.stationarity:
+        if self.stationarity and self.burst_s is not None:
+            rules["stationarity"] = (
+                f"no trend in the mean squares of windows of at least {BURST_WINDOWS:g} burst durations "
+                f"({self.burst_s:.3g} s each): reverse-arrangements test at {alpha} (Bendat & Piersol)"
+            )
+        elif self.stationarity:
             rules["stationarity"] = (
                 "mean square of each short window (at least 100 chi-square dof, Bendat & Piersol) against the "
                 f"record's, within the chi-square limits at {alpha} over all windows"
@@ -1175,7 +1186,9 @@ def _judge(criteria, profile, estimate, comparison, first, second, statistics, r
 
     # --- stationarity: mean square of short windows against chi-square limits (Bendat & Piersol)
     rms_windows = np.asarray(short_windows.result())
-    if criteria.stationarity and rms_windows.size >= 4:
+    if criteria.stationarity and criteria.burst_s is not None:
+        _judge_burst_stationarity(add, criteria, rms_windows, short_windows.window_s, alpha)
+    elif criteria.stationarity and rms_windows.size >= 4:
         m = int(round(short_windows.window_s * rate_hz))
         nu = _non_gaussian_window_dof(rho, m, first.kurtosis, first.skewness)
         ratio = rms_windows ** 2 / float(np.mean(rms_windows ** 2))
@@ -1251,6 +1264,33 @@ def _judge(criteria, profile, estimate, comparison, first, second, statistics, r
                 f"({lo_a:.2f}-{hi_a:.2f} sigma)",
                 measured_sigma=peak, limit_low_sigma=lo_a, limit_high_sigma=hi_a)
     return checks
+
+
+#: Stationarity windows of a burst drive: at least this many burst durations each.
+BURST_WINDOWS = 4.0
+
+
+def _judge_burst_stationarity(add, criteria, rms_windows: np.ndarray, window_s: float, alpha: float) -> None:
+    """Stationarity of a burst drive: reverse arrangements of mean squares over windows of >= 4 bursts."""
+    from vibsynth.analysis.stationarity import MIN_WINDOWS, reverse_arrangements_test
+
+    group = max(1, int(math.ceil(BURST_WINDOWS * criteria.burst_s / window_s)))
+    count = rms_windows.size // group
+    if count < MIN_WINDOWS:
+        add("stationarity", "stationarity", True,
+            f"not judged: {count} windows of {group * window_s:.3g} s (>= {BURST_WINDOWS:g} bursts of "
+            f"{criteria.burst_s:.3g} s) are fewer than the {MIN_WINDOWS} the trend test needs",
+            "", judged=False, windows=count, window_s=group * window_s)
+        return
+    squares = (rms_windows[: count * group] ** 2).reshape(count, group).mean(axis=1)
+    test = reverse_arrangements_test(squares, alpha)
+    add("stationarity", "stationarity", test.stationary,
+        f"{count} windows of {group * window_s:.3g} s: {test.count} reverse arrangements "
+        f"(limits {test.low:.0f}-{test.high:.0f}; burst drive, trend test)",
+        f"stationarity: the mean squares of {count} windows of {group * window_s:.3g} s show a trend "
+        f"({test.count} reverse arrangements, limits {test.low:.0f}-{test.high:.0f})",
+        windows=count, window_s=group * window_s, measured_reverse_arrangements=test.count,
+        limit_low_reverse_arrangements=test.low, limit_high_reverse_arrangements=test.high)
 
 
 def _resolve_features(profile, choice, steady, rate_hz, target_dof, criteria):

@@ -3,6 +3,7 @@
 Stages, for every drive (Gaussian or not)::
 
     periodic record | overlap-add of frames     (unit-variance Gaussian stream u)
+      -> burst envelope a(t) (optional)         (vibsynth.generate.modulation: x = a u)
       -> memoryless transform g (optional)      (vibsynth.transforms, a MemorylessTransform)
       -> spill-over high-pass (optional)        (vibsynth.generate.highpass)
       -> clip to the transform's peak limit, scale to g
@@ -32,6 +33,16 @@ is the identity.
     stream sample ``n + B/2`` (B the filter block).  A linear stream is filtered
     by partitioned overlap-save, a transformed one block by block
     (:mod:`vibsynth.generate.highpass`).
+
+The burst envelope (a plan with ``modulation``, never with a transform)
+multiplies the Gaussian stream where it is made (the whole periodic record, or
+each overlap-add hop block), at absolute stream sample indices, so it is a
+function of the seed and the sample index alone.  It comes before the
+spill-over high-pass: the product spreads every line by the envelope's
+bandwidth (about ``1 / burst_s``), and what that spread puts below the band is
+removed with the window's leakage; the slow envelope passes the high-pass
+unchanged.  A periodic record with an envelope gets the exact frequency-domain
+high-pass as a transformed one does.
 
 Either way the record is a deterministic function of (seed, plan): it does not
 depend on the chunk size it is read in, on where a read starts, on the number
@@ -75,7 +86,8 @@ from vibsynth.generate.plan import (
 from vibsynth.generate.seeds import FRAME_STREAM, PERIODIC_STREAM, child_generator, root_seed_sequence, seed_entropy
 from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
 
-__all__ = ["BOUND_PASSES", "Synthesizer", "generate_samples", "iter_chunks", "make_synthesizer"]
+__all__ = ["BOUND_PASSES", "KURTOSIS_MODELS", "Synthesizer", "check_kurtosis_model", "generate_samples", "iter_chunks",
+           "make_synthesizer"]
 
 #: A clipped (bounded) drive alternates clip and high-pass this many more times after the first
 #: high-pass.  The high-pass removes the clip's spill below the band but lifts a few samples over the
@@ -131,6 +143,7 @@ class Synthesizer:
         self.root = root_seed_sequence(seed)
         self.workers = check_workers(workers)
         self._record: np.ndarray | None = None
+        self._envelope_knots = None
         highpass = plan.spill_highpass
         self._partitioned = None
         self._block_lowpass = None
@@ -186,6 +199,16 @@ class Synthesizer:
         return frame
 
     # ------------------------------------------------------------ stages
+    def _modulate(self, stream: np.ndarray, first: int) -> np.ndarray:
+        """The burst stage: multiply stream samples ``first, first + 1, ...`` by the envelope (in place)."""
+        envelope = self.plan.modulation
+        if envelope is None:
+            return stream
+        if self._envelope_knots is None:
+            self._envelope_knots = envelope.knots(self.root)
+        stream *= envelope.values(self.root, first, first + stream.shape[0], self._envelope_knots)
+        return stream
+
     def _finish_transformed(self, y: np.ndarray) -> np.ndarray:
         """Clip again to the transform's peak limit (if any) and scale to g, in place."""
         limit = self.plan.transform.peak_limit
@@ -251,6 +274,7 @@ class Synthesizer:
                 if plan.rest_taper_samples:
                     self._bring_to_rest(columns, lines)
             del lines
+            self._modulate(columns[:, 0], 0)
             if plan.transform is not None:
                 y = columns[:, 0]
                 plan.transform.apply(y, out=y)
@@ -311,10 +335,10 @@ class Synthesizer:
         frames = ordered_map(self._windowed_frame, range(first_hop, last_hop + 2), threads, in_flight)
         try:
             previous = next(frames)
-            for following in frames:
+            for index, following in enumerate(frames, start=first_hop):
                 out = previous[hop:]
                 out += following[:hop]
-                yield out
+                yield self._modulate(out, index * hop)
                 previous = following
         finally:
             frames.close()
@@ -500,7 +524,8 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
                      resolution_hz: float | None = None, loop: bool = False, ramp_s: float | None = None,
                      quantities="acceleration", memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES,
                      kurtosis: float | None = None, skewness: float | None = None, clip: float | None = None,
-                     workers: int = 1, rest_taper_s: float | None = None) -> tuple[Synthesizer, bool]:
+                     workers: int = 1, rest_taper_s: float | None = None, kurtosis_model: str = "transform",
+                     burst_s: float | None = None) -> tuple[Synthesizer, bool]:
     """The synthesizer of a drive request, and whether a single quantity was named (1-D results).
 
     Plans exactly as ``vibsynth generate`` does (the same transform,
@@ -514,6 +539,8 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
         As for :func:`generate_samples`.
     workers : int
         Threads (the samples do not depend on it).
+    kurtosis_model, burst_s
+        As for :func:`generate_samples`.
 
     Returns
     -------
@@ -530,8 +557,9 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
     See :func:`generate_samples`.
     """
     names, single = parse_quantities(quantities)
+    bursts = check_kurtosis_model(kurtosis_model, kurtosis, skewness, clip, loop, burst_s)
     transform = None
-    if not (kurtosis is None and skewness is None and clip is None):
+    if not bursts and not (kurtosis is None and skewness is None and clip is None):
         # the transforms and the compensation are loaded only for a non-Gaussian drive
         from vibsynth.transforms.choice import plan_transform
 
@@ -544,7 +572,59 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
         from vibsynth.generate.design import make_nongaussian_plan
 
         plan, _ = make_nongaussian_plan(profile, plan, transform)
+    if bursts:
+        from vibsynth.generate.modulation import burst_plan
+
+        plan = burst_plan(plan, profile.frequency_min_hz, kurtosis, burst_s)
     return Synthesizer(plan, seed, workers), single
+
+
+#: The ways a kurtosis target is reached: a memoryless transform of the stream, or a burst envelope.
+KURTOSIS_MODELS = ("transform", "bursts")
+
+
+def check_kurtosis_model(kurtosis_model: str, kurtosis, skewness, clip, loop: bool, burst_s) -> bool:
+    """Check the kurtosis model against the other options; True for the burst model.
+
+    Parameters
+    ----------
+    kurtosis_model : {"transform", "bursts"}
+    kurtosis, skewness, clip : float or None
+        The non-Gaussian options (the burst model takes ``kurtosis`` alone).
+    loop : bool
+    burst_s : float or None
+        Burst duration, s (burst model only).
+
+    Returns
+    -------
+    bool
+
+    Examples
+    --------
+    >>> check_kurtosis_model("bursts", 6.0, None, None, False, None)
+    True
+
+    References
+    ----------
+    Smallwood (2005) for the burst (product) model; Winterstein (1988) for the transform.
+    """
+    model = str(kurtosis_model).strip().lower()
+    if model not in KURTOSIS_MODELS:
+        raise InputError(f"kurtosis_model {kurtosis_model!r} must be one of {', '.join(KURTOSIS_MODELS)}",
+                         "kurtosis_model")
+    if model == "transform":
+        if burst_s is not None:
+            raise InputError("burst_s applies to the burst model; add kurtosis_model = bursts or drop burst_s", "burst_s")
+        return False
+    if kurtosis is None:
+        raise InputError("the burst model needs a kurtosis target above 3; give kurtosis", "kurtosis")
+    if skewness is not None or clip is not None:
+        raise InputError("the burst model is symmetric and unclipped; drop skewness/clip or use kurtosis_model = "
+                         "transform", "kurtosis_model")
+    if loop:
+        raise InputError("a burst envelope does not repeat seamlessly; drop the loop or use kurtosis_model = transform",
+                         "kurtosis_model")
+    return True
 
 
 def generate_samples(
@@ -563,6 +643,8 @@ def generate_samples(
     skewness: float | None = None,
     clip: float | None = None,
     rest_taper_s: float | None = None,
+    kurtosis_model: str = "transform",
+    burst_s: float | None = None,
 ) -> np.ndarray:
     """A time history whose spectrum is the profile's (Gaussian, or non-Gaussian with the same spectrum).
 
@@ -603,6 +685,14 @@ def generate_samples(
         (s) that brings all three columns to rest at the first and last sample
         (default: four periods of the lowest band frequency; 0: none).  A
         ``ramp_s`` given with these columns is used as this taper.
+    kurtosis_model : {"transform", "bursts"}
+        How ``kurtosis`` is reached: ``transform`` (default) by a memoryless
+        transform, ``bursts`` by a slowly varying random envelope
+        ``x = a(t) u(t)`` whose peaks survive a resonance (see
+        :mod:`vibsynth.generate.modulation`; kurtosis above 3 only).
+    burst_s : float, optional
+        Burst duration of the burst model, s (default from the profile's
+        lowest frequency: five decay times of a Q = 10 resonance there).
 
     Returns
     -------
@@ -634,7 +724,7 @@ def generate_samples(
     synthesizer, single = make_synthesizer(
         profile, duration_s, rate_hz, seed=seed, amplitude=amplitude, resolution_hz=resolution_hz, loop=loop,
         ramp_s=ramp_s, quantities=quantities, memory_budget_bytes=memory_budget_bytes, kurtosis=kurtosis,
-        skewness=skewness, clip=clip, rest_taper_s=rest_taper_s,
+        skewness=skewness, clip=clip, rest_taper_s=rest_taper_s, kurtosis_model=kurtosis_model, burst_s=burst_s,
     )
     warn_all(synthesizer.plan.warnings, stacklevel=2)
     samples = synthesizer.take_record()
@@ -658,6 +748,8 @@ def iter_chunks(
     skewness: float | None = None,
     clip: float | None = None,
     rest_taper_s: float | None = None,
+    kurtosis_model: str = "transform",
+    burst_s: float | None = None,
 ) -> Iterator[np.ndarray]:
     """The samples of :func:`generate_samples` as consecutive chunks, in constant memory.
 
@@ -668,7 +760,7 @@ def iter_chunks(
     ----------
     profile, duration_s, rate_hz, seed, amplitude, resolution_hz, loop, ramp_s, quantities, memory_budget_bytes
         As for :func:`generate_samples`.
-    kurtosis, skewness, clip, rest_taper_s : float, optional
+    kurtosis, skewness, clip, rest_taper_s, kurtosis_model, burst_s
         As for :func:`generate_samples`.
     chunk_samples : int
         Samples per chunk (the last may be shorter).  The samples do not
@@ -697,7 +789,7 @@ def iter_chunks(
     synthesizer, single = make_synthesizer(
         profile, duration_s, rate_hz, seed=seed, amplitude=amplitude, resolution_hz=resolution_hz, loop=loop,
         ramp_s=ramp_s, quantities=quantities, memory_budget_bytes=memory_budget_bytes, kurtosis=kurtosis,
-        skewness=skewness, clip=clip, rest_taper_s=rest_taper_s,
+        skewness=skewness, clip=clip, rest_taper_s=rest_taper_s, kurtosis_model=kurtosis_model, burst_s=burst_s,
     )
     warn_all(synthesizer.plan.warnings, stacklevel=2)
     chunks = synthesizer.iter_chunks(chunk_samples)

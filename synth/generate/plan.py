@@ -252,6 +252,10 @@ class SynthesisPlan:
         in g for ``irfft(norm="forward")``, G the spectral density matrix
         (``G_ab = E[conj(A) B]``).  Lines are ``H_k z_k`` with ``z_k`` C
         independent random-phase sources (see :mod:`vibsynth.generate.channels`).
+    modulation : BurstEnvelope or None
+        The burst model's envelope (:mod:`vibsynth.generate.modulation`): the
+        Gaussian stream is multiplied by it before the spill-over high-pass.
+        Not with a transform, nor with velocity/displacement columns.
 
     Examples
     --------
@@ -282,8 +286,15 @@ class SynthesisPlan:
     memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES
     channels: tuple = ()
     channel_factors: np.ndarray | None = None
+    modulation: object = None
 
     def __post_init__(self):
+        if self.modulation is not None and (self.transform is not None or len(tuple(self.quantities)) > 1):
+            raise InputError(
+                "the burst model modulates a Gaussian acceleration stream: it cannot follow a memoryless transform "
+                "(skewness or clip) nor make velocity/displacement columns; drop one of them",
+                "kurtosis_model",
+            )
         object.__setattr__(self, "mode", _check_choice(self.mode, MODES, "mode"))
         object.__setattr__(self, "amplitude", _check_choice(self.amplitude, AMPLITUDE_MODES, "amplitude"))
         rate = float(self.rate_hz)

@@ -27,6 +27,7 @@ a .csv column ``NAME_g``, a .npy column); .wav/.flac files have one full scale
 for all channels (``scale``, repeated in each channel's entry).  Its top-level
 ``profile`` is the planning envelope (every channel's band and breakpoints,
 the channels' ASDs summed); each channel's own target is ``channels[i].profile``.
+    transform, compensation (non-Gaussian drives; else null), [modulation (burst model only)], warnings, tool
 
 The reader also accepts the layout written by version 0.1 (``sidecar_version``
 1, flat plan keys, ``breakpoints`` of ``{frequency, asd}``) and converts it.
@@ -155,6 +156,9 @@ class Sidecar:
     options, plan, profile, transform, compensation : dict or None
         The request, the plan's decisions, the target, the non-Gaussian
         transform and its spectral compensation.
+    modulation : dict or None
+        The burst model's envelope (model, kurtosis, ``burst_s`` time scale,
+        ...); None for other drives (and the key is then left out).
     warnings : tuple of str
     tool : dict or None
         Name and versions of the writing software.
@@ -201,6 +205,7 @@ class Sidecar:
     profile: dict | None = None
     transform: dict | None = None
     compensation: dict | None = None
+    modulation: dict | None = None
     warnings: tuple = ()
     tool: dict | None = None
     channels: tuple | None = None
@@ -262,7 +267,7 @@ class Sidecar:
         ----------
         RFC 8259.
         """
-        return {
+        data = {
             "schema_version": SCHEMA_VERSION,
             "unit": self.unit,
             "scale": self.scale,
@@ -289,6 +294,9 @@ class Sidecar:
             "channels": None if self.channels is None else [dict(c) for c in self.channels],
             "pairs": None if self.pairs is None else [dict(p) for p in self.pairs],
         }
+        if self.modulation is not None:  # only burst-model drives carry it (older readers never see the key)
+            data["modulation"] = self.modulation
+        return data
 
     @classmethod
     def from_dict(cls, data, where: str = "sidecar") -> "Sidecar":
@@ -342,6 +350,7 @@ class Sidecar:
             profile=data.get("profile"),
             transform=data.get("transform") if isinstance(data.get("transform"), dict) else None,
             compensation=data.get("compensation") if isinstance(data.get("compensation"), dict) else None,
+            modulation=data.get("modulation") if isinstance(data.get("modulation"), dict) else None,
             warnings=tuple(str(w) for w in data.get("warnings") or () if isinstance(w, str))
             if isinstance(data.get("warnings"), list) else (),
             tool=data.get("tool") if isinstance(data.get("tool"), dict) else None,
@@ -524,6 +533,13 @@ def _validate(data: dict, side: str) -> None:
         names = [c["name"] for c in channels]
         if len(set(names)) != len(names):
             raise InputError(f"channel names {names!r} must be unique", side, "channels")
+    modulation = data.get("modulation")
+    if modulation is not None:
+        if not isinstance(modulation, dict):
+            raise InputError(f"modulation must be a JSON object or absent, got {modulation!r:.40}", side, "modulation")
+        burst = modulation.get("burst_s")
+        if isinstance(burst, bool) or not isinstance(burst, (int, float)) or not math.isfinite(burst) or burst <= 0:
+            raise InputError(f"burst_s {burst!r:.40} must be a duration > 0 s", side, "modulation.burst_s")
     for key in ("kurtosis", "skewness", "clip"):
         value = (data.get("options") or {}).get(key)
         if value is not None and (isinstance(value, bool) or not isinstance(value, (int, float))

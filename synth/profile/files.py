@@ -19,6 +19,16 @@ TOML profile format (vibsynth's own)::
 Each breakpoint gives ``frequency`` (Hz) and exactly one of ``asd`` and
 ``slope_db_per_octave``.
 
+An optional ``[amplitude]`` table carries amplitude statistics for the drive
+(written by ``vibsynth derive``; read by :func:`read_amplitude_section`, never
+part of the ASD)::
+
+    [amplitude]
+    model = "bursts"                # "gaussian", "transform" or "bursts"
+    kurtosis = 5.2                  # Pearson (3: Gaussian)
+    skewness = 0.01
+    burst_s = 0.8                   # bursts only: envelope time scale, s
+
 CSV: two columns, frequency in Hz and ASD, separated by commas, semicolons,
 tabs or spaces; ``#`` starts a comment.  Without a header row the ASD is in
 g^2/Hz.  A header row's ASD column (its second cell) must name its unit, one of
@@ -44,7 +54,7 @@ from vibsynth.errors import InputError
 from vibsynth.profile.asd import AsdProfile
 from vibsynth.profile.units import ACCEPTED_SPELLINGS, G2_PER_HZ, asd_unit, asd_units_named_in
 
-_TOP_KEYS = ("name", "description", "unit", "level_db", "grms", "notes", "breakpoints")
+_TOP_KEYS = ("name", "description", "unit", "level_db", "grms", "notes", "breakpoints", "amplitude")
 _POINT_KEYS = ("frequency", "asd", "slope_db_per_octave")
 
 PRESET_PACKAGE = "vibsynth.presets"
@@ -460,3 +470,126 @@ def write_profile(profile: AsdProfile, path: str | os.PathLike) -> Path:
 def _toml_string(text: str) -> str:
     escaped = text.replace("\\", "\\\\").replace('"', '\\"').replace("\n", " ")
     return f'"{escaped}"'
+
+
+# ------------------------------------------------------------- amplitude table
+#: Models an ``[amplitude]`` table may name.
+AMPLITUDE_MODELS = ("gaussian", "transform", "bursts")
+_AMPLITUDE_KEYS = ("model", "kurtosis", "skewness", "burst_s", "crest_factor", "source")
+
+
+def parse_amplitude_section(text: str, source: str = "<toml>") -> dict | None:
+    """The ``[amplitude]`` table of a TOML profile, checked; None when there is none.
+
+    Parameters
+    ----------
+    text : str
+        The TOML document.
+    source : str
+        File name for error messages.
+
+    Returns
+    -------
+    dict or None
+        ``model`` (``gaussian``, ``transform`` or ``bursts``), ``kurtosis``
+        (Pearson, dimensionless), ``skewness`` (dimensionless), ``burst_s``
+        (s, bursts only; may be absent), and the informative ``crest_factor``
+        and ``source`` when present.
+
+    Examples
+    --------
+    >>> parse_amplitude_section('[amplitude]\\nmodel = "bursts"\\nkurtosis = 5.0\\nburst_s = 0.8\\n')["burst_s"]
+    0.8
+
+    References
+    ----------
+    TOML v1.0.0 (toml.io).
+    """
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as error:
+        raise InputError(f"not valid TOML ({error})", source) from None
+    table = data.get("amplitude")
+    if table is None:
+        return None
+    if not isinstance(table, dict):
+        raise InputError("'amplitude' must be a table ([amplitude])", source, "amplitude")
+    for key in table:
+        if key not in _AMPLITUDE_KEYS:
+            raise InputError(f"unknown key '{key}'; {_suggest(key, _AMPLITUDE_KEYS)}", source, "amplitude")
+    model = table.get("model", "transform")
+    if model not in AMPLITUDE_MODELS:
+        raise InputError(f"model {model!r} must be one of {', '.join(AMPLITUDE_MODELS)}", source, "amplitude.model")
+    result = {"model": model}
+    for key, what in (("kurtosis", "kurtosis (Pearson, 3 is Gaussian)"), ("skewness", "skewness"),
+                      ("burst_s", "burst_s (s)"), ("crest_factor", "crest_factor")):
+        if key in table:
+            result[key] = _number(table[key], source, f"amplitude.{key}", what)
+    if "source" in table:
+        if not isinstance(table["source"], str):
+            raise InputError("'source' must be text", source, "amplitude.source")
+        result["source"] = table["source"]
+    if model == "bursts":
+        if not result.get("kurtosis", 0.0) > 3.0:
+            raise InputError("the bursts model needs kurtosis above 3", source, "amplitude.kurtosis")
+        if "burst_s" in result and not result["burst_s"] > 0:
+            raise InputError(f"burst_s {result['burst_s']:g} must be > 0 s", source, "amplitude.burst_s")
+    if model == "transform" and "kurtosis" not in result and "skewness" not in result:
+        raise InputError("the transform model needs kurtosis or skewness", source, "amplitude")
+    return result
+
+
+def read_amplitude_section(spec: str | os.PathLike) -> dict | None:
+    """The ``[amplitude]`` table of a TOML profile file (None for CSV files, presets and TOML without one).
+
+    Parameters
+    ----------
+    spec : str or path
+        As for :func:`read_profile`.
+
+    Returns
+    -------
+    dict or None
+        See :func:`parse_amplitude_section`.
+
+    Examples
+    --------
+    >>> read_amplitude_section("no-such-preset-name") is None
+    True
+
+    References
+    ----------
+    TOML v1.0.0 (toml.io).
+    """
+    path = Path(os.fspath(spec))
+    if path.suffix.lower() != ".toml" or not path.is_file():
+        return None
+    try:
+        text = path.read_bytes().decode("utf-8-sig")
+    except (OSError, UnicodeDecodeError):
+        return None  # read_profile has already said what is wrong with the file
+    return parse_amplitude_section(text, source=os.fspath(spec))
+
+
+def format_amplitude_section(amplitude: dict) -> str:
+    """An ``[amplitude]`` table as TOML text (keys of :func:`parse_amplitude_section`).
+
+    Examples
+    --------
+    >>> print(format_amplitude_section({"model": "bursts", "kurtosis": 5.0, "burst_s": 0.8}), end="")
+    [amplitude]
+    model = "bursts"
+    kurtosis = 5.0
+    burst_s = 0.8
+
+    References
+    ----------
+    TOML v1.0.0 (toml.io).
+    """
+    lines = ["[amplitude]"]
+    for key in _AMPLITUDE_KEYS:
+        if amplitude.get(key) is None:
+            continue
+        value = amplitude[key]
+        lines.append(f"{key} = {_toml_string(value) if isinstance(value, str) else repr(float(value))}")
+    return "\n".join(lines) + "\n"
