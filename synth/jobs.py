@@ -89,8 +89,8 @@ class DriveRequest:
     ----------
     output : str
         Destination path; its suffix picks the format (.wav, .flac, .csv, .npy).
-    duration_s : float
-        Duration, s.
+    duration_s : float or None
+        Duration, s (None: the profile's level schedule sets it).
     rate_hz : float
         Sample rate, Hz.
     seed : int or None
@@ -131,7 +131,7 @@ class DriveRequest:
     """
 
     output: str
-    duration_s: float
+    duration_s: float | None
     rate_hz: float
     seed: int | None = None
     amplitude: str = "fixed"
@@ -225,13 +225,19 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     if request.full_scale_g is not None and file_format not in ("wav", "flac"):
         raise InputError(f"--full-scale applies to .wav/.flac; .{file_format} holds values in g", "--full-scale")
     transform = plan_transform(request.kurtosis, request.skewness, request.clip)
+    from vibsynth.generate.schedule import drive_duration_s
+    from vibsynth.generate.tones import check_mixed_request
+
+    mixed = getattr(profile, "mixed", None)  # tones, narrow bands, level schedule (vibsynth.profile.mixed)
+    duration_s = drive_duration_s(profile, request.duration_s)
+    check_mixed_request(mixed, request.rate_hz, names, request.loop)
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
     # the option alone picks periodic vs overlap-add (the same samples on every machine); a periodic
     # record the machine cannot hold is refused by the planner.  Warnings are kept in plan.warnings.
     budget_bytes = request.memory_budget_mb * 2**20
     plan = synthesis.make_plan(
         profile,
-        request.duration_s,
+        duration_s,
         request.rate_hz,
         amplitude=request.amplitude,
         resolution_hz=request.resolution_hz,
@@ -253,7 +259,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % 2**53)  # exact in any JSON reader
     workers = default_workers() if request.workers is None else request.workers
-    synthesizer = pipeline.Synthesizer(plan, seed, workers)
+    synthesizer = pipeline.Synthesizer(plan, seed, workers, mixed=mixed)
     options = {
         "amplitude": request.amplitude,
         "resolution_hz": request.resolution_hz,
@@ -282,6 +288,9 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
             f"; non-Gaussian: sample n is sample n + {block // 2} of the Gaussian stream of the compensated "
             f"lines, transformed and high-passed in blocks of {block} samples"
         )
+    if mixed is not None and mixed.narrow_bands:
+        seed_derivation += ("; narrow band j: cosine offsets (one uniform in each of K sub-bands) then phases "
+                            "(uniform, cycles) from spawn_key (2, j)")
     sidecar = Sidecar(
         seed=seed,
         ramp_in_s=plan.ramp_in_samples / plan.rate_hz,

@@ -6,6 +6,7 @@ Stages, for every drive (Gaussian or not)::
       -> memoryless transform g (optional)      (vibsynth.transforms, a MemorylessTransform)
       -> spill-over high-pass (optional)        (vibsynth.generate.highpass)
       -> clip to the transform's peak limit, scale to g
+      -> + tones and narrow bands, x level schedule  (optional; vibsynth.generate.tones)
       -> raised-cosine ramps
       -> rechunk to the caller's chunk size
 
@@ -91,6 +92,9 @@ class Synthesizer:
         Threads that make overlap-add frames (and filter transformed blocks;
         default 1: all in the calling thread).  The samples are the same bit
         for bit whatever the number.
+    mixed : vibsynth.profile.mixed.MixedParts, optional
+        Tones and narrow bands added after the scale, and a level schedule
+        multiplying the sum, before the ramps (:mod:`vibsynth.generate.tones`).
 
     Notes
     -----
@@ -111,10 +115,15 @@ class Synthesizer:
     See the module docstring.
     """
 
-    def __init__(self, plan: SynthesisPlan, seed, workers: int = 1):
+    def __init__(self, plan: SynthesisPlan, seed, workers: int = 1, mixed=None):
         self.plan = plan
         self.root = root_seed_sequence(seed)
         self.workers = check_workers(workers)
+        self._mixed = None
+        if mixed is not None and not mixed.empty:
+            from vibsynth.generate.tones import MixedStage
+
+            self._mixed = MixedStage(mixed, plan.rate_hz, self.root)
         self._record: np.ndarray | None = None
         highpass = plan.spill_highpass
         self._partitioned = None
@@ -175,7 +184,9 @@ class Synthesizer:
         return y
 
     def _ramp(self, columns: np.ndarray, start: int) -> None:
-        """Raised-cosine fade-in/out (in place) of a stretch of columns that starts at sample ``start``."""
+        """Mixed-mode parts, then the raised-cosine fade-in/out (in place) of a stretch of columns from sample ``start``."""
+        if self._mixed is not None:  # tones, narrow bands and the level schedule (acceleration-only records)
+            self._mixed.apply(columns[:, 0], start)
         plan = self.plan
         stop = start + columns.shape[0]
         ramp_in, ramp_out, total = plan.ramp_in_samples, plan.ramp_out_samples, plan.total_samples
@@ -392,7 +403,7 @@ class Synthesizer:
 
 
 # ----------------------------------------------------------------- library
-def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, seed, amplitude: str = "fixed",
+def make_synthesizer(profile: AsdProfile, duration_s: float | None, rate_hz: float, *, seed, amplitude: str = "fixed",
                      resolution_hz: float | None = None, loop: bool = False, ramp_s: float | None = None,
                      quantities="acceleration", memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES,
                      kurtosis: float | None = None, skewness: float | None = None, clip: float | None = None,
@@ -426,6 +437,12 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
     See :func:`generate_samples`.
     """
     names, single = parse_quantities(quantities)
+    from vibsynth.generate.schedule import drive_duration_s
+    from vibsynth.generate.tones import check_mixed_request
+
+    mixed = getattr(profile, "mixed", None)
+    duration_s = drive_duration_s(profile, duration_s)
+    check_mixed_request(mixed, rate_hz, names, loop)
     transform = None
     if not (kurtosis is None and skewness is None and clip is None):
         # the transforms and the compensation are loaded only for a non-Gaussian drive
@@ -440,7 +457,7 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
         from vibsynth.generate.design import make_nongaussian_plan
 
         plan, _ = make_nongaussian_plan(profile, plan, transform)
-    return Synthesizer(plan, seed, workers), single
+    return Synthesizer(plan, seed, workers, mixed=mixed), single
 
 
 def generate_samples(
@@ -465,8 +482,9 @@ def generate_samples(
     ----------
     profile : AsdProfile
         Target ASD in g^2/Hz.
-    duration_s : float
-        Duration in s (rounded to whole samples).
+    duration_s : float or None
+        Duration in s (rounded to whole samples); None with a profile whose
+        level schedule sets it (``profile.mixed.schedule``).
     rate_hz : float
         Sample rate in Hz (> 2 x the top frequency; below 2.56 x it a
         :class:`~vibsynth.errors.VibsynthWarning` is issued).

@@ -31,6 +31,7 @@ is refused.  The TOML ``unit`` key accepts the same spellings.
 from __future__ import annotations
 
 import csv
+import dataclasses
 import difflib
 import io
 import math
@@ -44,7 +45,8 @@ from vibsynth.errors import InputError
 from vibsynth.profile.asd import AsdProfile
 from vibsynth.profile.units import ACCEPTED_SPELLINGS, G2_PER_HZ, asd_unit, asd_units_named_in
 
-_TOP_KEYS = ("name", "description", "unit", "level_db", "grms", "notes", "breakpoints")
+_TOP_KEYS = ("name", "description", "unit", "level_db", "grms", "notes", "breakpoints",
+             "tones", "narrow_bands", "schedule", "schedule_ramp_s")  # the last four: vibsynth.profile.mixed
 _POINT_KEYS = ("frequency", "asd", "slope_db_per_octave")
 
 PRESET_PACKAGE = "vibsynth.presets"
@@ -135,6 +137,11 @@ def parse_toml_profile(text: str, source: str = "<toml>") -> AsdProfile:
         profile = profile.scaled_db(_number(data["level_db"], source, "level_db", "level_db (dB)"))
     if "grms" in data:
         profile = profile.scaled_to_grms(_number(data["grms"], source, "grms", "grms (g)"))
+    from vibsynth.profile.mixed import parse_mixed
+
+    mixed = parse_mixed(data, source)  # tones, narrow bands, level schedule (None when absent)
+    if mixed is not None:
+        profile = dataclasses.replace(profile, mixed=mixed)
     return profile
 
 
