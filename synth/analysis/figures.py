@@ -165,6 +165,10 @@ def asd_figure(result: Verification, title: str = "") -> Figure:
         ax.plot(c.frequencies_hz[c.edge], np.clip(c.measured_g2_per_hz[c.edge], floor * 1.25, None), ".",
                 color=MUTED, ms=5, label=f"within {criteria.edge_exclusion_resolutions:g} resolution widths of a "
                                           "band edge: judged against the window-smoothed target")
+    if result.mixed is not None:  # tone lines and narrow bands of a mixed-mode record
+        from vibsynth.analysis.tones import mark_parts_on_asd
+
+        mark_parts_on_asd(ax, result)
     ax.set_xlim(f_lo, f_hi)
     ax.set_xlabel("frequency (Hz)")
     ax.set_ylabel("ASD (g²/Hz)")
@@ -267,6 +271,10 @@ def rms_figure(result: Verification, title: str = "") -> Figure:
     if values.size:
         ax.plot(starts, values, "o-", color=MEASURED, ms=3.5, lw=1.0, label=f"RMS per {result.window_s:.3g} s window")
     ax.set_ylim(0, max(target * (1 + tol), values.max() if values.size else target) * 1.25)
+    if result.mixed is not None:  # the record's RMS against the level schedule
+        from vibsynth.analysis.tones import draw_schedule_on_rms
+
+        draw_schedule_on_rms(ax, result)
     ax.set_xlabel("time (s)")
     ax.set_ylabel("RMS (g)")
     _headings(

@@ -369,11 +369,13 @@ def read_profile(spec: str | os.PathLike) -> AsdProfile:
 
 # ------------------------------------------------------------------ writing
 def format_toml_profile(profile: AsdProfile) -> str:
-    """The profile as vibsynth TOML (ASD values at every breakpoint, g^2/Hz)."""
+    """The profile as vibsynth TOML (ASD values at every breakpoint, g^2/Hz; mixed-mode sections after them)."""
+    schedule = getattr(getattr(profile, "mixed", None), "schedule", None)
     lines = [
         f"name = {_toml_string(profile.name)}",
         f"description = {_toml_string(profile.description)}",
         'unit = "g^2/Hz"',
+        *([f"schedule_ramp_s = {float(schedule.ramp_s)!r}"] if schedule is not None else []),
         f"# overall {profile.grms:.6g} g RMS, band {profile.frequency_min_hz:g}-{profile.frequency_max_hz:g} Hz",
     ]
     slopes = profile.slopes_db_per_octave
@@ -383,7 +385,9 @@ def format_toml_profile(profile: AsdProfile) -> str:
         lines.append(f"frequency = {float(frequency)!r}")
         comment = "" if index == 0 else f"  # {slopes[index - 1]:+.3f} dB/octave from the previous point"
         lines.append(f"asd = {float(asd)!r}{comment}")
-    return "\n".join(lines) + "\n"
+    from vibsynth.profile.mixed import format_mixed_toml
+
+    return "\n".join(lines) + "\n" + format_mixed_toml(getattr(profile, "mixed", None))
 
 
 def format_csv_profile(profile: AsdProfile) -> str:

@@ -220,8 +220,8 @@ class Tone:
 
     Examples
     --------
-    >>> Tone(Sweep(50.0), 2.0).rms_g
-    1.4142135623730951
+    >>> round(Tone(Sweep(50.0), 2.0).rms_g, 6)
+    1.414214
 
     References
     ----------
@@ -426,6 +426,29 @@ class MixedParts:
         ms = random_rms_g**2 + sum(t.rms_g**2 for t in self.tones) + sum(b.rms_g**2 for b in self.narrow_bands)
         return math.sqrt(ms)
 
+    def summary(self, random_grms_g: float) -> dict:
+        """Each part's RMS, the total and the peak, as plain data (``vibsynth info --json`` key ``mixed``).
+
+        ``peak_g`` is the sum of the tones' largest amplitudes plus three
+        standard deviations of the random parts (broadband and narrow bands,
+        Gaussian): tones add their peaks, as their crests can coincide.
+        Units: g, Hz, s, dB (in the key names).
+        """
+        random_ms = random_grms_g**2 + sum(b.rms_g**2 for b in self.narrow_bands)
+        parts = [{"part": "random", "rms_g": random_grms_g}]
+        for k, tone in enumerate(self.tones):
+            row = {"part": f"tone {k + 1}", **tone.to_dict(), "peak_g": tone.max_peak_g}
+            parts.append(row)
+        for k, band in enumerate(self.narrow_bands):
+            parts.append({"part": f"narrow band {k + 1}", **band.to_dict()})
+        total = self.total_rms_g(random_grms_g)
+        out = {"parts": parts, "total_rms_g": total, "peak_g": self.peak_sum_g + 3.0 * math.sqrt(random_ms),
+               "tone_peak_sum_g": self.peak_sum_g, "schedule": None}
+        if self.schedule is not None:
+            out["schedule"] = {**self.schedule.to_dict(), "duration_s": self.schedule.duration_s,
+                               "step_rms_g": [total * f for f in self.schedule.factors.tolist()]}
+        return out
+
     def to_dict(self) -> dict:
         """Plain data (the sidecar's ``profile.mixed`` block)."""
         return {"tones": [t.to_dict() for t in self.tones],
@@ -607,6 +630,47 @@ def parse_mixed(data: dict, source: str = "<toml>") -> MixedParts | None:
     return MixedParts(tuple(tones), tuple(bands), schedule)
 
 
+def format_mixed_toml(parts: MixedParts | None) -> str:
+    """The mixed-mode sections as TOML text (empty for None), readable by :func:`parse_mixed`.
+
+    Examples
+    --------
+    >>> print(format_mixed_toml(MixedParts(tones=(Tone(Sweep(50.0), 1.0),))).strip())
+    [[tones]]
+    frequency = 50.0
+    peak_g = 1.0
+    phase_deg = 0.0
+
+    References
+    ----------
+    TOML v1.0.0.
+    """
+    if parts is None:
+        return ""
+    lines = []
+
+    def sweep_lines(sweep):
+        out = [f"frequency = {float(sweep.start_hz)!r}"]
+        if sweep.swept:
+            key = "sweep_octaves_per_minute" if sweep.law == "log" else "sweep_hz_per_second"
+            out += [f"sweep_to = {float(sweep.end_hz)!r}", f"{key} = {float(sweep.rate)!r}",
+                    f'sweep_mode = "{sweep.mode}"']
+        return out
+
+    for tone in parts.tones:
+        lines += ["", "[[tones]]", *sweep_lines(tone.sweep), f"peak_g = {float(tone.peak_g)!r}",
+                  f"phase_deg = {float(tone.phase_deg)!r}"]
+        for f, a in tone.amplitude_points:
+            lines += ["[[tones.amplitude]]", f"frequency = {float(f)!r}", f"peak_g = {float(a)!r}"]
+    for band in parts.narrow_bands:
+        lines += ["", "[[narrow_bands]]", *sweep_lines(band.sweep), f"bandwidth = {float(band.bandwidth_hz)!r}",
+                  f"asd = {float(band.asd_g2_per_hz)!r}"]
+    if parts.schedule is not None:
+        for level, duration in parts.schedule.steps:
+            lines += ["", "[[schedule]]", f"level_db = {float(level)!r}", f"duration_s = {float(duration)!r}"]
+    return "\n".join(lines) + "\n"
+
+
 def check_mixed_rate(parts: MixedParts | None, rate_hz: float, source: str = "profile") -> None:
     """Refuse tones or narrow bands that reach the Nyquist frequency ``rate_hz / 2``.
 
@@ -629,4 +693,4 @@ def check_mixed_rate(parts: MixedParts | None, rate_hz: float, source: str = "pr
 
 
 __all__ = ["DEFAULT_SCHEDULE_RAMP_S", "MixedParts", "NarrowBand", "Schedule", "Sweep", "Tone", "check_mixed_rate",
-           "parse_mixed"]
+           "format_mixed_toml", "parse_mixed"]
