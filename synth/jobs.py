@@ -230,7 +230,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
 
     mixed = getattr(profile, "mixed", None)  # tones, narrow bands, level schedule (vibsynth.profile.mixed)
     duration_s = drive_duration_s(profile, request.duration_s)
-    check_mixed_request(mixed, request.rate_hz, names, request.loop)
+    check_mixed_request(mixed, request.rate_hz, names, request.loop, profile.source or profile.name)
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
     # the option alone picks periodic vs overlap-add (the same samples on every machine); a periodic
     # record the machine cannot hold is refused by the planner.  Warnings are kept in plan.warnings.

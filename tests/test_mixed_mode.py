@@ -384,3 +384,23 @@ def test_docstring_examples_run():
                    vibsynth.analysis.tones):
         result = doctest.testmod(module, optionflags=doctest.ELLIPSIS)
         assert result.attempted > 0 and result.failed == 0
+
+
+def test_swept_tone_is_judged_along_the_sweep_and_a_low_one_fails():
+    sweep = Sweep(60.0, 480.0, "log", 9.0, "one-way")  # 3 octaves in 20 s
+    profile = AsdProfile([20.0, 2000.0], [0.002, 0.002], mixed=MixedParts(tones=(Tone(sweep, 3.0),)))
+    x = generate_samples(profile, 24.0, RATE, seed=8)
+    good = verify_record(x, RATE, profile)
+    assert good.passed, good.reasons
+    check = next(c for c in good.checks if c["name"] == "swept_tone_amplitude")
+    print(f"swept tone: {check['measured_error_percent']:+.3f} % over the sweep, worst window "
+          f"{check['measured_worst_window_error_percent']:+.3f} %")
+    # least squares on the commanded phase law, in the test's own code (Kay 1993)
+    t = np.arange(x.size) / RATE
+    design = np.column_stack([np.cos(2 * np.pi * sweep.cycles(t)), np.sin(2 * np.pi * sweep.cycles(t))])
+    beta, *_ = np.linalg.lstsq(design, x, rcond=None)
+    assert math.hypot(*beta) == pytest.approx(3.0, rel=0.01)
+    low = x - 0.3 * np.cos(2 * np.pi * sweep.cycles(t))  # 10 % low all along
+    bad = verify_record(low, RATE, profile)
+    assert bad.failed == ("swept_tone_amplitude",)
+    assert "tone 1 (60 Hz swept)" in bad.reasons[0]

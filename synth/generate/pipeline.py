@@ -442,7 +442,7 @@ def make_synthesizer(profile: AsdProfile, duration_s: float | None, rate_hz: flo
 
     mixed = getattr(profile, "mixed", None)
     duration_s = drive_duration_s(profile, duration_s)
-    check_mixed_request(mixed, rate_hz, names, loop)
+    check_mixed_request(mixed, rate_hz, names, loop, profile.source or profile.name)
     transform = None
     if not (kurtosis is None and skewness is None and clip is None):
         # the transforms and the compensation are loaded only for a non-Gaussian drive

@@ -95,7 +95,8 @@ def tone_samples(tone: Tone, start: int, count: int, rate_hz: float) -> np.ndarr
     return out
 
 
-def check_mixed_request(parts: MixedParts | None, rate_hz: float, quantities, loop: bool) -> None:
+def check_mixed_request(parts: MixedParts | None, rate_hz: float, quantities, loop: bool,
+                        source: str = "profile") -> None:
     """Refuse what a mixed-mode drive cannot be: a looped record, velocity/displacement columns, tones at Nyquist.
 
     Examples
@@ -108,7 +109,7 @@ def check_mixed_request(parts: MixedParts | None, rate_hz: float, quantities, lo
     """
     if parts is None or parts.empty:
         return
-    check_mixed_rate(parts, rate_hz)
+    check_mixed_rate(parts, rate_hz, source)
     if loop:
         raise InputError("a profile with tones, narrow bands or a schedule cannot make a looped record; drop loop",
                          location="loop")
