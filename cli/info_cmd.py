@@ -100,7 +100,9 @@ def _format_mixed(summary: dict) -> str:
             sweep = f" swept to {part['sweep_to_hz']:g} Hz ({part['mode']})" if "sweep_to_hz" in part else ""
             text += f", {part['peak_g']:.4g} g peak at {part['frequency_hz']:g} Hz{sweep}"
         elif part["part"].startswith("narrow"):
-            text += f", {part['asd_g2_per_hz']:g} g^2/Hz over {part['bandwidth_hz']:g} Hz at {part['frequency_hz']:g} Hz"
+            table = " (peak of its table)" if "breakpoints" in part else ""
+            text += (f", {part['asd_g2_per_hz']:g} g^2/Hz{table} over {part['bandwidth_hz']:g} Hz at "
+                     f"{part['frequency_hz']:g} Hz")
         lines.append(text)
     lines.append(f"  total          {summary['total_rms_g']:.4g} g RMS at 0 dB; peak about {summary['peak_g']:.4g} g "
                  "(tone peaks added, plus 3 sigma of the random parts)")

@@ -404,3 +404,97 @@ def test_swept_tone_is_judged_along_the_sweep_and_a_low_one_fails():
     bad = verify_record(low, RATE, profile)
     assert bad.failed == ("swept_tone_amplitude",)
     assert "tone 1 (60 Hz swept)" in bad.reasons[0]
+
+
+def test_amplitude_given_along_the_sweep_is_followed():
+    text = """
+[[breakpoints]]
+frequency = 20.0
+asd = 1e-5
+[[breakpoints]]
+frequency = 2000.0
+asd = 1e-5
+[[tones]]
+frequency = 50.0
+sweep_to = 400.0
+sweep_octaves_per_minute = 12.0
+[[tones.amplitude]]
+frequency = 50.0
+peak_g = 1.0
+[[tones.amplitude]]
+frequency = 400.0
+peak_g = 4.0
+"""
+    profile = parse_toml_profile(text, "shaped.toml")
+    tone = profile.mixed.tones[0]
+    assert tone.peak_g == pytest.approx(1.0)
+    x = generate_samples(profile, 15.0, RATE, seed=4)  # 3 octaves at 12 octaves per minute
+    t = np.arange(x.size) / RATE
+    cycles = tone.sweep.cycles(t)
+    frequency = tone.sweep.frequency_hz(t)
+    # least squares in 1 s windows, the test's own (Kay 1993); scatter sqrt(S/T) = 0.003 g
+    for lo_s in np.arange(1.0, 14.0, 2.0):
+        window = (t >= lo_s) & (t < lo_s + 1.0)
+        design = np.column_stack([np.cos(2 * np.pi * cycles[window]), np.sin(2 * np.pi * cycles[window])])
+        # amplitude log-log in frequency from 1 g at 50 Hz to 4 g at 400 Hz: A = (f / 50)^(2/3)
+        expected = (frequency[window] / 50.0) ** (2.0 / 3.0)
+        beta, *_ = np.linalg.lstsq(design * expected[:, None], x[window], rcond=None)
+        assert math.hypot(*beta) == pytest.approx(1.0, rel=0.02)
+    assert verify_record(x, RATE, profile).passed
+
+
+def test_tones_stay_out_of_the_non_gaussian_transform():
+    profile = parse_toml_profile(SINE_ON_RANDOM, "invented.toml")
+    x = generate_samples(profile, 30.0, RATE, seed=6, kurtosis=5.0)
+    amplitudes, fitted = _ls_amplitudes(x, RATE, [80.0, 315.0, 1250.0])
+    assert np.allclose(amplitudes, [3.0, 4.0, 5.0], rtol=0.01)  # a transformed tone would lose amplitude
+    random = x - fitted
+    kurtosis = float(np.mean(random**4) / np.mean(random**2) ** 2)  # Pearson
+    assert kurtosis == pytest.approx(5.0, rel=0.1)
+
+
+def test_narrow_band_with_a_table_of_its_own_and_a_sweep(tmp_path):
+    text = """
+[[breakpoints]]
+frequency = 20.0
+asd = 0.002
+[[breakpoints]]
+frequency = 2000.0
+asd = 0.002
+[[narrow_bands]]
+frequency = 600.0
+[[narrow_bands.breakpoints]]
+offset_hz = -20.0
+asd = 0.0
+[[narrow_bands.breakpoints]]
+offset_hz = 0.0
+asd = 0.1
+[[narrow_bands.breakpoints]]
+offset_hz = 20.0
+asd = 0.0
+"""
+    profile = parse_toml_profile(text, "triangle.toml")
+    band = profile.mixed.narrow_bands[0]
+    assert band.rms_g == pytest.approx(math.sqrt(0.1 * 20.0))  # triangle area 0.5 x 40 Hz x 0.1 g^2/Hz
+    x = generate_samples(profile, 40.0, RATE, seed=3)
+    f, pxx = scipy.signal.welch(x, fs=RATE, nperseg=8192)  # Welch (1967), Hann, 50 % overlap
+    excess = pxx - 0.002
+    near = lambda hz: np.mean(excess[np.abs(f - hz) < 2.0])  # noqa: E731
+    assert near(600.0) == pytest.approx(0.1, rel=0.15)
+    assert near(610.0) == pytest.approx(0.05, rel=0.15)
+    df = f[1] - f[0]
+    assert np.sum(excess[(f > 570) & (f < 630)]) * df == pytest.approx(2.0, rel=0.05)
+    assert verify_record(x, RATE, profile).passed
+    # swept centre: 600 -> 900 Hz at 10 Hz/s and back; the mean square stays, spread over the swept range
+    swept = parse_toml_profile(text.replace("frequency = 600.0\n", 'frequency = 600.0\nsweep_to = 900.0\n'
+                                            'sweep_hz_per_second = 10.0\nsweep_mode = "there-and-back"\n'), "s.toml")
+    y = generate_samples(swept, 60.0, RATE, seed=3)
+    f, pyy = scipy.signal.welch(y, fs=RATE, nperseg=8192)
+    assert np.sum((pyy - 0.002)[(f > 560) & (f < 940)]) * (f[1] - f[0]) == pytest.approx(2.0, rel=0.1)
+    result = verify_record(y, RATE, swept)
+    assert result.passed, result.reasons
+    # written back as TOML, read again: the same parts
+    from vibsynth.profile.files import read_profile, write_profile
+
+    write_profile(swept, tmp_path / "back.toml")
+    assert read_profile(tmp_path / "back.toml").mixed == swept.mixed

@@ -312,8 +312,7 @@ def verify_mixed_record(verify, source, total: int, rate_hz: float, profile, cri
         if not tone.sweep.swept:
             excluded.append((tone.frequency_hz, tone.frequency_hz))
     for band in parts.narrow_bands:
-        lo, hi = band.sweep.range_hz()
-        excluded.append((lo - band.bandwidth_hz / 2, hi + band.bandwidth_hz / 2))
+        excluded.append(band.frequency_range_hz())
     inner_criteria = dataclasses.replace(criteria, excluded_bands_hz=tuple(criteria.excluded_bands_hz) + tuple(excluded))
     inner = verify(lambda: residual_chunks(source, rate_hz, parts, fit, skip_start_samples), rate_hz, random_profile,
                    inner_criteria, n_samples=total, resolution_hz=resolution_hz, target_dof=target_dof,
@@ -341,8 +340,8 @@ def verify_mixed_record(verify, source, total: int, rate_hz: float, profile, cri
         label = f"tone {k + 1} ({tone.frequency_hz:g} Hz{' swept' if tone.sweep.swept else ''})"
         background = float(random_profile.evaluate(np.array([tone.frequency_hz]))[0])
         for band in parts.narrow_bands:
-            lo, hi = band.sweep.range_hz()
-            if lo - band.bandwidth_hz / 2 <= tone.frequency_hz <= hi + band.bandwidth_hz / 2:
+            lo, hi = band.frequency_range_hz()
+            if lo <= tone.frequency_hz <= hi:
                 background += band.asd_g2_per_hz
         entry = {"part": label, "frequency_hz": tone.frequency_hz, "target_peak_g": tone.peak_g}
         if not tone.sweep.swept:
@@ -417,8 +416,8 @@ def verify_mixed_record(verify, source, total: int, rate_hz: float, profile, cri
     f = estimate.frequencies_hz
     for j, band in enumerate(parts.narrow_bands):
         label = f"narrow band {j + 1} ({band.frequency_hz:g} Hz)"
-        lo, hi = band.sweep.range_hz()
-        lo, hi = lo - band.bandwidth_hz / 2 - 2 * df, hi + band.bandwidth_hz / 2 + 2 * df
+        lo, hi = band.frequency_range_hz()
+        lo, hi = lo - 2 * df, hi + 2 * df
         inside = (f >= lo) & (f <= hi)
         excess = float(np.sum(estimate.asd[inside] - random_profile.evaluate(f[inside])) * df)
         rms = math.sqrt(max(excess, 0.0))
@@ -514,8 +513,8 @@ def mark_parts_on_asd(ax, result) -> None:
         else:
             ax.axvline(lo, color="#c9a227", lw=1.2, ls=(0, (2, 2)), label=text)
     for k, band in enumerate(parts.narrow_bands):
-        lo, hi = band.sweep.range_hz()
-        ax.axvspan(lo - band.bandwidth_hz / 2, hi + band.bandwidth_hz / 2, color="#6a8caf", alpha=0.15, lw=0,
+        lo, hi = band.frequency_range_hz()
+        ax.axvspan(lo, hi, color="#6a8caf", alpha=0.15, lw=0,
                    label=f"narrow band {k + 1}")
 
 

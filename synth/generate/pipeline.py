@@ -462,7 +462,7 @@ def make_synthesizer(profile: AsdProfile, duration_s: float | None, rate_hz: flo
 
 def generate_samples(
     profile: AsdProfile,
-    duration_s: float,
+    duration_s: float | None,
     rate_hz: float,
     *,
     seed,
@@ -481,7 +481,10 @@ def generate_samples(
     Parameters
     ----------
     profile : AsdProfile
-        Target ASD in g^2/Hz.
+        Target ASD in g^2/Hz.  Its optional mixed-mode parts
+        (``profile.mixed``: tones, narrow bands, a level schedule; see
+        :mod:`vibsynth.profile.mixed`) are added after the transform and the
+        scale, and the schedule multiplies the sum (:mod:`vibsynth.generate.tones`).
     duration_s : float or None
         Duration in s (rounded to whole samples); None with a profile whose
         level schedule sets it (``profile.mixed.schedule``).
@@ -551,7 +554,7 @@ def generate_samples(
 
 def iter_chunks(
     profile: AsdProfile,
-    duration_s: float,
+    duration_s: float | None,
     rate_hz: float,
     *,
     seed,

@@ -8,7 +8,8 @@ Every sample is a closed-form function of its index ``n`` (time ``t = n / rate``
 * a narrow band is a random-phase sum of ``K`` cosines whose frequencies are
   the (swept) centre plus fixed offsets ``d_k`` spread over the band (one
   offset drawn uniformly inside each of ``K`` equal sub-bands), amplitudes
-  ``sqrt(2 S B / K)`` (mean square ``S B``), phases uniform on ``[0, 2 pi)``;
+  ``sqrt(2 S B / K)`` (mean square ``S B``; with a table of its own, each
+  cosine carries its sub-band's mean square), phases uniform on ``[0, 2 pi)``;
   offsets and phases come from the child ``spawn_key + (2, j)`` of the
   record's root seed (band ``j``), so the band is deterministic by seed.
 
@@ -149,9 +150,14 @@ class MixedStage:
             rng = child_generator(root, NARROW_BAND_STREAM, index)
             k = narrow_band_lines(band)
             width = band.bandwidth_hz / k
-            offsets = -band.bandwidth_hz / 2 + width * (np.arange(k) + rng.uniform(0.0, 1.0, k))
+            low = band.offsets_hz[0]
+            offsets = low + width * (np.arange(k) + rng.uniform(0.0, 1.0, k))
             phases = rng.uniform(0.0, 1.0, k)  # in cycles
-            amplitude = math.sqrt(2.0 * band.asd_g2_per_hz * band.bandwidth_hz / k)
+            if band.shape:  # each cosine carries the mean square of its sub-band (16-point mean of the table)
+                grid = low + width * (np.arange(k)[:, None] + (np.arange(16) + 0.5)[None, :] / 16.0)
+                amplitude = np.sqrt(2.0 * band.asd_at_offset(grid).mean(axis=1) * width)
+            else:
+                amplitude = math.sqrt(2.0 * band.asd_g2_per_hz * band.bandwidth_hz / k)
             self._bands.append((band, offsets, phases, amplitude))
 
     def _add_band(self, x: np.ndarray, start: int, entry) -> None:
@@ -165,7 +171,7 @@ class MixedStage:
             drift -= np.floor(drift)
             drift += centre[:, None]
             drift += phases[None, :]
-            x[lo:hi] += amplitude * np.cos(2.0 * np.pi * drift).sum(axis=1)
+            x[lo:hi] += (np.cos(2.0 * np.pi * drift) * amplitude).sum(axis=1)
 
     def apply(self, x: np.ndarray, start: int) -> None:
         """Add the tones and bands to ``x`` (samples ``start ..``, g) and multiply by the schedule, in place."""

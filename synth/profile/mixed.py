@@ -27,6 +27,18 @@ TOML sections (all optional; a profile without them is a plain random profile)::
     bandwidth = 20.0                # Hz
     asd = 0.05                      # g^2/Hz
 
+    [[narrow_bands]]                # or a small table of its own (linear in the offset from the centre)
+    frequency = 900.0
+    [[narrow_bands.breakpoints]]
+    offset_hz = -15.0
+    asd = 0.0
+    [[narrow_bands.breakpoints]]
+    offset_hz = 0.0
+    asd = 0.08
+    [[narrow_bands.breakpoints]]
+    offset_hz = 15.0
+    asd = 0.0
+
     [[schedule]]                    # steps in order; the drive lasts the sum of the durations
     level_db = -6.0
     duration_s = 30.0
@@ -66,7 +78,7 @@ DEFAULT_SCHEDULE_RAMP_S = 1.0
 TOP_KEYS = ("tones", "narrow_bands", "schedule", "schedule_ramp_s")
 _SWEEP_KEYS = ("sweep_to", "sweep_octaves_per_minute", "sweep_hz_per_second", "sweep_mode")
 _TONE_KEYS = ("frequency", "peak_g", "rms_g", "phase_deg", "amplitude") + _SWEEP_KEYS
-_BAND_KEYS = ("frequency", "bandwidth", "asd") + _SWEEP_KEYS
+_BAND_KEYS = ("frequency", "bandwidth", "asd", "breakpoints") + _SWEEP_KEYS
 _STEP_KEYS = ("level_db", "duration_s")
 SWEEP_MODES = ("one-way", "there-and-back")
 
@@ -282,21 +294,39 @@ class Tone:
 
 @dataclass(frozen=True)
 class NarrowBand:
-    """Random of flat ASD ``asd_g2_per_hz`` over ``bandwidth_hz`` centred on a (possibly swept) frequency.
+    """Random over a band that moves with a (possibly swept) centre frequency.
+
+    Parameters
+    ----------
+    sweep : Sweep
+        The centre frequency law, Hz.
+    bandwidth_hz : float
+        Width of the band, Hz (with ``shape``: its span).
+    asd_g2_per_hz : float
+        Flat ASD over ``centre +/- bandwidth / 2``, g^2/Hz (with ``shape``: its largest value).
+    shape : tuple of (offset_hz, asd_g2_per_hz)
+        Optional breakpoint table of the band's own ASD against the offset
+        from the centre (Hz, increasing; negative below the centre),
+        interpolated linearly in the offset (the table moves with the centre,
+        so it keeps its shape along a sweep).  Its mean square is then the
+        trapezoid area, exact for linear interpolation.
 
     Examples
     --------
     >>> round(NarrowBand(Sweep(400.0), 20.0, 0.05).rms_g, 6)
     1.0
+    >>> round(NarrowBand(Sweep(400.0), 20.0, 0.1, ((-10.0, 0.0), (0.0, 0.1), (10.0, 0.0))).rms_g, 6)
+    1.0
 
     References
     ----------
-    Mean square = ASD x bandwidth (one-sided ASD, flat band).
+    Mean square = integral of the one-sided ASD over the band (Bendat & Piersol 2010).
     """
 
     sweep: Sweep
     bandwidth_hz: float
     asd_g2_per_hz: float
+    shape: tuple = ()
 
     @property
     def frequency_hz(self) -> float:
@@ -304,19 +334,49 @@ class NarrowBand:
         return float(self.sweep.start_hz)
 
     @property
+    def offsets_hz(self) -> tuple[float, float]:
+        """Lowest and highest offset from the centre, Hz."""
+        if self.shape:
+            return float(self.shape[0][0]), float(self.shape[-1][0])
+        return -self.bandwidth_hz / 2.0, self.bandwidth_hz / 2.0
+
+    def asd_at_offset(self, offset_hz) -> np.ndarray:
+        """The band's ASD at offsets from the centre (Hz), g^2/Hz (0 outside the band)."""
+        d = np.asarray(offset_hz, dtype=float)
+        lo, hi = self.offsets_hz
+        if not self.shape:
+            return np.where((d >= lo) & (d <= hi), self.asd_g2_per_hz, 0.0)
+        points = np.array(self.shape, dtype=float)
+        return np.interp(d, points[:, 0], points[:, 1], left=0.0, right=0.0)
+
+    def frequency_range_hz(self) -> tuple[float, float]:
+        """Lowest and highest frequency the band reaches along its law, Hz."""
+        lo, hi = self.sweep.range_hz()
+        d_lo, d_hi = self.offsets_hz
+        return lo + d_lo, hi + d_hi
+
+    @property
     def rms_g(self) -> float:
-        """RMS, g: sqrt(ASD x bandwidth)."""
-        return math.sqrt(self.asd_g2_per_hz * self.bandwidth_hz)
+        """RMS, g: sqrt(ASD x bandwidth), or the square root of the table's (trapezoid, exact) area."""
+        if not self.shape:
+            return math.sqrt(self.asd_g2_per_hz * self.bandwidth_hz)
+        points = np.array(self.shape, dtype=float)
+        area = float(np.sum(np.diff(points[:, 0]) * (points[1:, 1] + points[:-1, 1]) / 2.0))
+        return math.sqrt(area)
 
     def to_dict(self) -> dict:
         """Plain data (sidecar)."""
-        return {**self.sweep.to_dict(), "bandwidth_hz": float(self.bandwidth_hz),
-                "asd_g2_per_hz": float(self.asd_g2_per_hz), "rms_g": self.rms_g}
+        out = {**self.sweep.to_dict(), "bandwidth_hz": float(self.bandwidth_hz),
+               "asd_g2_per_hz": float(self.asd_g2_per_hz), "rms_g": self.rms_g}
+        if self.shape:
+            out["breakpoints"] = [{"offset_hz": float(d), "asd_g2_per_hz": float(a)} for d, a in self.shape]
+        return out
 
     @classmethod
     def from_dict(cls, data: dict) -> "NarrowBand":
         """Inverse of :meth:`to_dict`."""
-        return cls(Sweep.from_dict(data), float(data["bandwidth_hz"]), float(data["asd_g2_per_hz"]))
+        shape = tuple((float(p["offset_hz"]), float(p["asd_g2_per_hz"])) for p in data.get("breakpoints", ()))
+        return cls(Sweep.from_dict(data), float(data["bandwidth_hz"]), float(data["asd_g2_per_hz"]), shape)
 
 
 @dataclass(frozen=True)
@@ -592,15 +652,48 @@ def parse_mixed(data: dict, source: str = "<toml>") -> MixedParts | None:
         location = f"narrow_bands[{index + 1}]"
         _check_keys(table, _BAND_KEYS, source, location)
         sweep = _sweep(table, source, location)
-        for key in ("bandwidth", "asd"):
-            if key not in table:
-                raise InputError(f"missing '{key}' ({'Hz' if key == 'bandwidth' else 'g^2/Hz'})", source, location)
-        width = _number(table["bandwidth"], source, location + ".bandwidth", "bandwidth (Hz)", positive=True)
-        asd = _number(table["asd"], source, location + ".asd", "asd (g^2/Hz)", positive=True)
-        if width >= 2.0 * sweep.range_hz()[0]:
-            raise InputError(f"bandwidth {width:g} Hz must be below twice the lowest centre frequency "
-                             f"({2 * sweep.range_hz()[0]:g} Hz)", source, location + ".bandwidth")
-        bands.append(NarrowBand(sweep, width, asd))
+        shape = ()
+        if "breakpoints" in table:
+            if "bandwidth" in table or "asd" in table:
+                raise InputError("give 'bandwidth' and 'asd' (a flat band) or [[narrow_bands.breakpoints]] (a table "
+                                 "of offset_hz and asd), not both", source, location)
+            rows = table["breakpoints"]
+            if not isinstance(rows, list) or not all(isinstance(r, dict) for r in rows) or len(rows) < 2:
+                raise InputError("'breakpoints' must be at least two tables ([[narrow_bands.breakpoints]]) of "
+                                 "offset_hz and asd", source, location + ".breakpoints")
+            pts = []
+            for k, row in enumerate(rows):
+                where = f"{location}.breakpoints[{k + 1}]"
+                _check_keys(row, ("offset_hz", "asd"), source, where)
+                if "offset_hz" not in row or "asd" not in row:
+                    raise InputError("each breakpoint needs 'offset_hz' (Hz from the centre) and 'asd' (g^2/Hz)",
+                                     source, where)
+                pts.append((_number(row["offset_hz"], source, where + ".offset_hz", "offset_hz (Hz)"),
+                            _number(row["asd"], source, where + ".asd", "asd (g^2/Hz)")))
+                if pts[-1][1] < 0:
+                    raise InputError(f"asd {pts[-1][1]:g} must be >= 0 g^2/Hz", source, where + ".asd")
+                if k and pts[-1][0] <= pts[-2][0]:
+                    raise InputError("offsets must be strictly increasing", source, where + ".offset_hz")
+            shape = tuple(pts)
+            width = shape[-1][0] - shape[0][0]
+            asd = max(a for _, a in shape)
+            if asd <= 0:
+                raise InputError("the band's ASD is zero everywhere; give a positive 'asd' somewhere", source,
+                                 location + ".breakpoints")
+            if sweep.range_hz()[0] + shape[0][0] <= 0:
+                raise InputError(f"the lowest offset {shape[0][0]:g} Hz reaches below 0 Hz from the centre "
+                                 f"{sweep.range_hz()[0]:g} Hz", source, location + ".breakpoints")
+        else:
+            for key in ("bandwidth", "asd"):
+                if key not in table:
+                    raise InputError(f"missing '{key}' ({'Hz' if key == 'bandwidth' else 'g^2/Hz'}), or give "
+                                     "[[narrow_bands.breakpoints]]", source, location)
+            width = _number(table["bandwidth"], source, location + ".bandwidth", "bandwidth (Hz)", positive=True)
+            asd = _number(table["asd"], source, location + ".asd", "asd (g^2/Hz)", positive=True)
+            if width >= 2.0 * sweep.range_hz()[0]:
+                raise InputError(f"bandwidth {width:g} Hz must be below twice the lowest centre frequency "
+                                 f"({2 * sweep.range_hz()[0]:g} Hz)", source, location + ".bandwidth")
+        bands.append(NarrowBand(sweep, width, asd, shape))
     schedule = None
     steps = _tables(data, "schedule", source)
     if "schedule_ramp_s" in data and not steps:
@@ -663,8 +756,12 @@ def format_mixed_toml(parts: MixedParts | None) -> str:
         for f, a in tone.amplitude_points:
             lines += ["[[tones.amplitude]]", f"frequency = {float(f)!r}", f"peak_g = {float(a)!r}"]
     for band in parts.narrow_bands:
-        lines += ["", "[[narrow_bands]]", *sweep_lines(band.sweep), f"bandwidth = {float(band.bandwidth_hz)!r}",
-                  f"asd = {float(band.asd_g2_per_hz)!r}"]
+        lines += ["", "[[narrow_bands]]", *sweep_lines(band.sweep)]
+        if band.shape:
+            for d, a in band.shape:
+                lines += ["[[narrow_bands.breakpoints]]", f"offset_hz = {float(d)!r}", f"asd = {float(a)!r}"]
+        else:
+            lines += [f"bandwidth = {float(band.bandwidth_hz)!r}", f"asd = {float(band.asd_g2_per_hz)!r}"]
     if parts.schedule is not None:
         for level, duration in parts.schedule.steps:
             lines += ["", "[[schedule]]", f"level_db = {float(level)!r}", f"duration_s = {float(duration)!r}"]
@@ -686,7 +783,7 @@ def check_mixed_rate(parts: MixedParts | None, rate_hz: float, source: str = "pr
         return
     for kind, items in (("tones", parts.tones), ("narrow_bands", parts.narrow_bands)):
         for index, item in enumerate(items):
-            top = item.sweep.range_hz()[1] + (item.bandwidth_hz / 2 if kind == "narrow_bands" else 0.0)
+            top = item.frequency_range_hz()[1] if kind == "narrow_bands" else item.sweep.range_hz()[1]
             if top >= rate_hz / 2:
                 raise InputError(f"reaches {top:g} Hz, at or above half the sample rate ({rate_hz / 2:g} Hz); "
                                  f"use a rate above {2 * top:g} Hz", source, f"{kind}[{index + 1}]")
