@@ -226,12 +226,13 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest) -> PreparedDrive:
         raise InputError(f"--full-scale applies to .wav/.flac; .{file_format} holds values in g", "--full-scale")
     transform = plan_transform(request.kurtosis, request.skewness, request.clip)
     from vibsynth.generate.schedule import drive_duration_s
-    from vibsynth.generate.tones import check_mixed_request
+    from vibsynth.generate.tones import check_mixed_request, mixed_rig_limit_check
 
     mixed = getattr(profile, "mixed", None)  # tones, narrow bands, level schedule (vibsynth.profile.mixed)
     duration_s = drive_duration_s(profile, request.duration_s)
     check_mixed_request(mixed, request.rate_hz, names, request.loop, profile.source or profile.name)
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
+    mixed_rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)  # tones add their peaks
     # the option alone picks periodic vs overlap-add (the same samples on every machine); a periodic
     # record the machine cannot hold is refused by the planner.  Warnings are kept in plan.warnings.
     budget_bytes = request.memory_budget_mb * 2**20

@@ -334,6 +334,10 @@ CASES = [
     Case("tone-above-nyquist", ("generate", "{work}/mixed.toml", "-o", "{work}/d.npy", "--duration", 5, "--rate", RATE),
          ("{work}/mixed.toml: tones[1]", "at or above half the sample rate", "use a rate above"),
          _mixed_profile("[[tones]]\nfrequency = 2600.0\npeak_g = 1.0\n")),
+    Case("low-tone-beyond-stroke-limit", ("generate", "{work}/mixed.toml", "-o", "{work}/d.npy", "--duration", 5,
+                                          "--rate", RATE, "--stroke-limit", 4),
+         ("--stroke-limit", "with its tones", "beyond the 4 mm stroke limit", "refusing"),
+         _mixed_profile("[[tones]]\nfrequency = 20.0\npeak_g = 3.0\n")),  # 2 x 3 g0 / (2 pi 20)^2 = 3.7 mm + 1.2 mm
     Case("tones-with-loop", ("generate", "{work}/mixed.toml", "-o", "{work}/d.npy", "--duration", 5, "--rate", RATE,
                              "--loop"),
          ("--loop", "cannot make a looped record", "drop loop"), _mixed_profile(_TONE)),

@@ -119,6 +119,51 @@ def check_mixed_request(parts: MixedParts | None, rate_hz: float, quantities, lo
                          "schedule; ask for acceleration only", location="quantities")
 
 
+def mixed_rig_limit_check(profile, stroke_limit_mm: float | None, velocity_limit_m_s: float | None) -> None:
+    """Refuse a drive whose tones, narrow bands and schedule take it beyond a rig's stroke or velocity.
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        With ``profile.mixed`` (nothing is checked without it).
+    stroke_limit_mm : float or None
+        Shaker stroke, peak-to-peak, mm.
+    velocity_limit_m_s : float or None
+        Shaker velocity limit (peak), m/s.
+
+    Raises
+    ------
+    InputError
+        Naming the need and the limit (``stroke_limit_mm``, ``velocity_limit_m_s``).
+
+    Examples
+    --------
+    >>> from vibsynth.profile.asd import AsdProfile
+    >>> from vibsynth.profile.mixed import Sweep
+    >>> p = AsdProfile([20, 2000], [0.001, 0.001], mixed=MixedParts(tones=(Tone(Sweep(5.0), 1.0),)))
+    >>> mixed_rig_limit_check(p, 10.0, None)
+    Traceback (most recent call last):
+    ...
+    vibsynth.errors.InputError: stroke_limit_mm: with its tones, narrow bands and schedule the drive may need ...
+
+    References
+    ----------
+    See :meth:`vibsynth.profile.mixed.MixedParts.rig_demands`.
+    """
+    parts = getattr(profile, "mixed", None)
+    if parts is None or parts.empty:
+        return
+    stroke_m, velocity_m_s = parts.rig_demands(profile)
+    if stroke_limit_mm is not None and stroke_m * 1e3 > stroke_limit_mm:
+        raise InputError(f"with its tones, narrow bands and schedule the drive may need {stroke_m * 1e3:.3g} mm "
+                         f"peak-to-peak (tone peaks added, random parts at 3 sigma), beyond the {stroke_limit_mm:g} mm "
+                         "stroke limit; refusing to write the drive", "stroke_limit_mm")
+    if velocity_limit_m_s is not None and velocity_m_s > velocity_limit_m_s:
+        raise InputError(f"with its tones, narrow bands and schedule the drive may need {velocity_m_s:.3g} m/s peak "
+                         f"velocity (tone peaks added, random parts at 3 sigma), beyond the {velocity_limit_m_s:g} m/s "
+                         "limit; refusing to write the drive", "velocity_limit_m_s")
+
+
 class MixedStage:
     """Adds tones and narrow bands, then applies the level schedule, to stretches of the drive (in place).
 
@@ -183,4 +228,4 @@ class MixedStage:
             apply_schedule(x, start, self.parts.schedule, self.rate_hz)
 
 
-__all__ = ["MixedStage", "check_mixed_request", "NARROW_BAND_STREAM", "narrow_band_lines", "tone_samples"]
+__all__ = ["MixedStage", "check_mixed_request", "mixed_rig_limit_check", "NARROW_BAND_STREAM", "narrow_band_lines", "tone_samples"]

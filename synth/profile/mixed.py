@@ -486,13 +486,52 @@ class MixedParts:
         ms = random_rms_g**2 + sum(t.rms_g**2 for t in self.tones) + sum(b.rms_g**2 for b in self.narrow_bands)
         return math.sqrt(ms)
 
-    def summary(self, random_grms_g: float) -> dict:
+    def rig_demands(self, profile) -> tuple[float, float]:
+        """Peak-to-peak displacement (m) and peak velocity (m/s) the whole drive may need.
+
+        Tones add their peaks (``A g0 / (2 pi f)`` and ``A g0 / (2 pi f)^2`` at
+        the lowest frequency of a sweep, the largest amplitude); the random
+        parts (broadband, and each narrow band at its lowest centre) add in
+        quadrature at 3 sigma; the loudest schedule step scales the sum.
+
+        Examples
+        --------
+        >>> from vibsynth.profile.asd import AsdProfile
+        >>> p = AsdProfile([20, 2000], [1e-12, 1e-12])
+        >>> stroke, velocity = MixedParts(tones=(Tone(Sweep(10.0), 1.0),)).rig_demands(p)
+        >>> round(stroke * 1e3, 3), round(velocity, 4)  # 2 x 9.80665 / (2 pi 10)^2 m; 9.80665 / (2 pi 10) m/s
+        (4.968, 0.1561)
+
+        References
+        ----------
+        Sine displacement and velocity from acceleration, A/(2 pi f)^2 and
+        A/(2 pi f); random parts: Bendat & Piersol (2010), 3 sigma common practice (no source).
+        """
+        g0 = 9.80665  # standard gravity, m/s^2 (CGPM 1901)
+        disp_ms = profile.displacement_rms_m**2
+        vel_ms = profile.velocity_rms_m_s**2
+        for band in self.narrow_bands:
+            omega = 2.0 * math.pi * max(band.frequency_range_hz()[0], 1e-9)  # its lowest frequency: the most stroke
+            vel_ms += (band.rms_g * g0 / omega) ** 2
+            disp_ms += (band.rms_g * g0 / omega**2) ** 2
+        stroke = 6.0 * math.sqrt(disp_ms)
+        velocity = 3.0 * math.sqrt(vel_ms)
+        for tone in self.tones:
+            omega = 2.0 * math.pi * tone.sweep.range_hz()[0]
+            stroke += 2.0 * tone.max_peak_g * g0 / omega**2
+            velocity += tone.max_peak_g * g0 / omega
+        top = float(np.max(self.schedule.factors)) if self.schedule is not None else 1.0
+        return stroke * top, velocity * top
+
+    def summary(self, random_grms_g: float, profile=None) -> dict:
         """Each part's RMS, the total and the peak, as plain data (``vibsynth info --json`` key ``mixed``).
 
         ``peak_g`` is the sum of the tones' largest amplitudes plus three
         standard deviations of the random parts (broadband and narrow bands,
         Gaussian): tones add their peaks, as their crests can coincide.
-        Units: g, Hz, s, dB (in the key names).
+        With ``profile`` (the random background), also
+        ``displacement_peak_to_peak_m`` and ``velocity_peak_m_s`` from
+        :meth:`rig_demands`.  Units: g, Hz, s, dB, m, m/s (in the key names).
         """
         random_ms = random_grms_g**2 + sum(b.rms_g**2 for b in self.narrow_bands)
         parts = [{"part": "random", "rms_g": random_grms_g}]
@@ -504,6 +543,10 @@ class MixedParts:
         total = self.total_rms_g(random_grms_g)
         out = {"parts": parts, "total_rms_g": total, "peak_g": self.peak_sum_g + 3.0 * math.sqrt(random_ms),
                "tone_peak_sum_g": self.peak_sum_g, "schedule": None}
+        if profile is not None:
+            stroke, velocity = self.rig_demands(profile)
+            out["displacement_peak_to_peak_m"] = stroke
+            out["velocity_peak_m_s"] = velocity
         if self.schedule is not None:
             out["schedule"] = {**self.schedule.to_dict(), "duration_s": self.schedule.duration_s,
                                "step_rms_g": [total * f for f in self.schedule.factors.tolist()]}
