@@ -498,3 +498,22 @@ asd = 0.0
 
     write_profile(swept, tmp_path / "back.toml")
     assert read_profile(tmp_path / "back.toml").mixed == swept.mixed
+
+
+def test_kurtosis_target_with_a_narrow_band_is_judged_on_the_diluted_value():
+    from vibsynth.analysis.verify import Criteria
+
+    text = SINE_ON_RANDOM + "[[narrow_bands]]\nfrequency = 700.0\nbandwidth = 20.0\nasd = 0.05\n"
+    profile = parse_toml_profile(text, "k.toml")
+    x = generate_samples(profile, 40.0, RATE, seed=21, kurtosis=5.0)
+    _, fitted = _ls_amplitudes(x, RATE, [80.0, 315.0, 1250.0])
+    random = x - fitted
+    share = 9.9 / (9.9 + 1.0)  # background 0.005 x 1980 g^2, band 0.05 x 20 g^2
+    # cumulants of independent parts add (Kendall & Stuart, vol. 1): kurtosis 3 + (K - 3) share^2
+    expected = 3.0 + 2.0 * share**2
+    measured = float(np.mean(random**4) / np.mean(random**2) ** 2)
+    assert measured == pytest.approx(expected, rel=0.05)
+    result = verify_record(x, RATE, profile, Criteria(kurtosis_target=5.0))
+    assert result.passed, result.reasons
+    check = next(c for c in result.checks if c["name"] == "kurtosis")
+    assert check["target_kurtosis"] == pytest.approx(expected)

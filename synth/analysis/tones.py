@@ -25,6 +25,11 @@ with ``g`` the level schedule's gain (1 without a schedule), each tone
    The random part's criteria keep their names; their reasons start with
    "random part:".
 
+With narrow bands, a kurtosis or skewness target of the background is
+judged on the random part as ``3 + (K - 3) s^4`` and ``S s^3`` (``s^2`` the
+background's share of the random variance; cumulants of independent parts
+add, Kendall & Stuart, *The Advanced Theory of Statistics*, vol. 1).
+
 Tolerances: tone amplitude 5 % (common practice, no source) widened to five
 standard deviations of the least-squares estimate, ``sigma_A^2 = S(f) / T``
 for a tone in a random background of one-sided ASD ``S`` over ``T`` seconds
@@ -314,6 +319,16 @@ def verify_mixed_record(verify, source, total: int, rate_hz: float, profile, cri
     for band in parts.narrow_bands:
         excluded.append(band.frequency_range_hz())
     inner_criteria = dataclasses.replace(criteria, excluded_bands_hz=tuple(criteria.excluded_bands_hz) + tuple(excluded))
+    if parts.narrow_bands and criteria.amplitude_target:
+        # The random part holds the (Gaussian) narrow bands as well: cumulants of independent parts add, so
+        # kurtosis 3 + (K - 3) s^4 and skewness S s^3 with s^2 the background's share of the variance; a clip
+        # level bounds the background alone, so the crest factor is reported, not judged.
+        share = random_profile.grms**2 / (random_profile.grms**2 + sum(b.rms_g**2 for b in parts.narrow_bands))
+        inner_criteria = dataclasses.replace(
+            inner_criteria,
+            kurtosis_target=None if criteria.kurtosis_target is None else 3.0 + (criteria.kurtosis_target - 3.0) * share**2,
+            skewness_target=None if criteria.skewness_target is None else criteria.skewness_target * share**1.5,
+            crest_factor_limit=None)
     inner = verify(lambda: residual_chunks(source, rate_hz, parts, fit, skip_start_samples), rate_hz, random_profile,
                    inner_criteria, n_samples=total, resolution_hz=resolution_hz, target_dof=target_dof,
                    skip_start_samples=skip_start_samples, skip_end_samples=skip_end_samples, excerpt_s=excerpt_s)
