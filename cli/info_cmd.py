@@ -7,7 +7,7 @@ import json
 import click
 
 from vibsynth.cli import options
-from vibsynth.cli.common import METRE_PER_INCH, is_quiet, load_profile  # noqa: F401
+from vibsynth.cli.common import METRE_PER_INCH, is_quiet, length_text, load_profile, velocity_text  # noqa: F401
 
 
 def _format_info(profile, inch: bool) -> str:
@@ -162,12 +162,43 @@ def info(profile, as_json, grms, level_db, inch, write_path, command_quiet, repa
         return
     if write_path:
         write_profile(loaded, write_path)
+    mixed = getattr(loaded, "mixed", None)  # tones, narrow bands, schedule: each part's RMS, total, peak
     if as_json:
-        click.echo(json.dumps(loaded.summary(), indent=2))
+        click.echo(json.dumps({**loaded.summary(), **({"mixed": loaded.mixed.summary(loaded.grms, loaded)} if mixed else {})},
+                              indent=2))
     elif not is_quiet(command_quiet):
         click.echo(_format_info(loaded, inch))
+        if mixed is not None:
+            click.echo(_format_mixed(mixed.summary(loaded.grms, loaded), inch))
         if write_path:
             click.echo(f"\nwrote {write_path}")
+
+
+def _format_mixed(summary: dict, inch: bool = False) -> str:
+    """Text lines for the mixed-mode parts of a profile."""
+    lines = ["", "mixed-mode parts (the g RMS above is the random background's):"]
+    for part in summary["parts"]:
+        text = f"  {part['part']:<14} {part['rms_g']:.4g} g RMS"
+        if part["part"].startswith("tone"):
+            sweep = f" swept to {part['sweep_to_hz']:g} Hz ({part['mode']})" if "sweep_to_hz" in part else ""
+            text += f", {part['peak_g']:.4g} g peak at {part['frequency_hz']:g} Hz{sweep}"
+        elif part["part"].startswith("narrow"):
+            table = " (peak of its table)" if "breakpoints" in part else ""
+            text += (f", {part['asd_g2_per_hz']:g} g^2/Hz{table} over {part['bandwidth_hz']:g} Hz at "
+                     f"{part['frequency_hz']:g} Hz")
+        lines.append(text)
+    lines.append(f"  total          {summary['total_rms_g']:.4g} g RMS at 0 dB; peak about {summary['peak_g']:.4g} g "
+                 "(tone peaks added, plus 3 sigma of the random parts)")
+    lines.append(f"  rig demand     {length_text(summary['displacement_peak_to_peak_m'], inch)} peak-to-peak, "
+                 f"{velocity_text(summary['velocity_peak_m_s'], inch)} peak (tone peaks added, random parts at "
+                 "3 sigma, loudest step)")
+    schedule = summary["schedule"]
+    if schedule is not None:
+        steps = ", ".join(f"{s['level_db']:+g} dB {s['duration_s']:g} s ({rms:.3g} g RMS)"
+                          for s, rms in zip(schedule["steps"], schedule["step_rms_g"]))
+        lines.append(f"  schedule       {steps}; {schedule['ramp_s']:g} s transitions; {schedule['duration_s']:g} s "
+                     "in all")
+    return "\n".join(lines)
 
 
 @click.command()

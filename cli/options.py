@@ -60,8 +60,9 @@ level_db = SharedOption("--level-db", type=types.FINITE, default=None, metavar="
                         help="Shift the profile by DB decibels first (-6 dB: half the g RMS).")
 
 # ------------------------------------------------------------------ a drive (generate, run)
-duration = SharedOption("--duration", required=True, type=types.positive(), metavar="S",
-                        help="Duration of the drive in seconds.")
+duration = SharedOption("--duration", required=False, default=None, type=types.positive(), metavar="S",
+                        help="Duration of the drive in seconds (required unless the profile has a [[schedule]], "
+                             "whose steps set it).")
 rate = SharedOption("--rate", required=True, type=types.positive(), metavar="HZ",
                     help="Sample rate in Hz; must exceed twice the profile's top frequency "
                          f"({RATE_MARGIN_FACTOR:g} x is the usual margin).")

@@ -43,7 +43,8 @@ REPORT_FILES = ("profile.toml", "report.json", "report.pdf", "asd.png", "amplitu
 @click.option("-o", "--output", "--out", "out_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
               help="The output FOLDER (created if needed; `vibsynth generate -o` takes a file). "
                    "Default: ./vibsynth-run-NAME.")
-@options.apply(*(options.duration.but(required=False, default=DEFAULT_DURATION_S, show_default=True),
+@options.apply(*(options.duration.but(help=f"Duration of the drive in seconds. Default: {DEFAULT_DURATION_S:g} s, "
+                                           "or the profile's [[schedule]] (the sum of its steps)."),
                  options.rate_defaulted)
                + tuple(o for o in options.DRIVE_OPTIONS if o not in (options.duration, options.rate)))
 @click.option("--format", "file_format", type=click.Choice(["flac", "wav", "csv", "npy"]), default="flac",
@@ -82,6 +83,8 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
     quiet = is_quiet(command_quiet) or as_json
     spec = profile or DEFAULT_PRESET
     target = load_profile(spec, grms, level_db)
+    if duration is None and getattr(getattr(target, "mixed", None), "schedule", None) is None:
+        duration = DEFAULT_DURATION_S
     if inch:
         for channel in getattr(target, "channels", (target,)):  # a multi-channel profile: every channel
             check_limits_in_inches(channel, stroke_limit, velocity_limit)

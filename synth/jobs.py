@@ -89,8 +89,8 @@ class DriveRequest:
     ----------
     output : str
         Destination path; its suffix picks the format (.wav, .flac, .csv, .npy).
-    duration_s : float
-        Duration, s.
+    duration_s : float or None
+        Duration, s (None: the profile's level schedule sets it).
     rate_hz : float
         Sample rate, Hz.
     seed : int or None
@@ -139,7 +139,7 @@ class DriveRequest:
     """
 
     output: str
-    duration_s: float
+    duration_s: float | None
     rate_hz: float
     seed: int | None = None
     amplitude: str = "fixed"
@@ -252,13 +252,20 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     bursts = pipeline.check_kurtosis_model(request.kurtosis_model, request.kurtosis, request.skewness, request.clip,
                                            request.loop, request.burst_s)
     transform = None if bursts else plan_transform(request.kurtosis, request.skewness, request.clip)
+    from vibsynth.generate.schedule import drive_duration_s
+    from vibsynth.generate.tones import check_mixed_request, mixed_rig_limit_check
+
+    mixed = getattr(profile, "mixed", None)  # tones, narrow bands, level schedule (vibsynth.profile.mixed)
+    duration_s = drive_duration_s(profile, request.duration_s)
+    check_mixed_request(mixed, request.rate_hz, names, request.loop, profile.source or profile.name)
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
+    mixed_rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)  # tones add their peaks
     # the option alone picks periodic vs overlap-add (the same samples on every machine); a periodic
     # record the machine cannot hold is refused by the planner.  Warnings are kept in plan.warnings.
     budget_bytes = request.memory_budget_mb * 2**20
     plan = synthesis.make_plan(
         profile,
-        request.duration_s,
+        duration_s,
         request.rate_hz,
         amplitude=request.amplitude,
         resolution_hz=request.resolution_hz,
@@ -290,7 +297,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     if seed is None:
         seed = int(np.random.SeedSequence().entropy % 2**53)  # exact in any JSON reader
     workers = default_workers() if request.workers is None else request.workers
-    synthesizer = pipeline.Synthesizer(plan, seed, workers)
+    synthesizer = pipeline.Synthesizer(plan, seed, workers, mixed=mixed)
     options = {
         "amplitude": request.amplitude,
         "resolution_hz": request.resolution_hz,
@@ -323,6 +330,9 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
             f"; non-Gaussian: sample n is sample n + {block // 2} of the Gaussian stream of the compensated "
             f"lines, transformed and high-passed in blocks of {block} samples"
         )
+    if mixed is not None and mixed.narrow_bands:
+        seed_derivation += ("; narrow band j: cosine offsets (one uniform in each of K sub-bands) then phases "
+                            "(uniform, cycles) from spawn_key (2, j)")
     sidecar = Sidecar(
         seed=seed,
         # a rest taper is the fade of a velocity/displacement record: verification judges the part between

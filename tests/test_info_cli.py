@@ -131,6 +131,24 @@ BAD_PROFILES = [
     ("no_points.toml", TOML_HEAD, "no [[breakpoints]]"),
     ("decreasing.toml", bp(200, 0.04) + bp(20, 0.04), "is below"),
     ("suffix.xlsx", "20,0.04\n", "unknown profile suffix"),
+    # mixed-mode sections (tones, narrow bands, schedule)
+    ("tone_typo.toml", bp(20, 0.04) + bp(200, 0.04) + "[[tones]]\nfrequency = 50\npeak = 1\n",
+     "tones[1]: unknown key 'peak'; did you mean 'peak_g'"),
+    ("tone_no_amplitude.toml", bp(20, 0.04) + bp(200, 0.04) + "[[tones]]\nfrequency = 50\n",
+     "tones[1]: missing 'peak_g' (g peak) or 'rms_g' (g RMS)"),
+    ("tone_sweep_no_rate.toml", bp(20, 0.04) + bp(200, 0.04) + "[[tones]]\nfrequency = 50\npeak_g = 1\nsweep_to = 90\n",
+     "give exactly one of 'sweep_octaves_per_minute'"),
+    ("tone_sweep_mode.toml", bp(20, 0.04) + bp(200, 0.04)
+     + '[[tones]]\nfrequency = 50\npeak_g = 1\nsweep_to = 90\nsweep_hz_per_second = 1\nsweep_mode = "round"\n',
+     "sweep_mode 'round' is not one of one-way, there-and-back"),
+    ("band_wide.toml", bp(20, 0.04) + bp(200, 0.04) + "[[narrow_bands]]\nfrequency = 50\nbandwidth = 120\nasd = 0.1\n",
+     "narrow_bands[1].bandwidth: bandwidth 120 Hz must be below twice"),
+    ("step_short.toml", "schedule_ramp_s = 5\n" + bp(20, 0.04) + bp(200, 0.04)
+     + "[[schedule]]\nlevel_db = -3\nduration_s = 10\n[[schedule]]\nlevel_db = 0\nduration_s = 4\n",
+     "schedule[2].duration_s: duration_s 4 s must exceed schedule_ramp_s (5 s)"),
+    ("step_level.toml", bp(20, 0.04) + bp(200, 0.04) + "[[schedule]]\nlevel_db = 40\nduration_s = 10\n",
+     "level_db 40 dB must lie between -60 and +20 dB"),
+    ("ramp_alone.toml", "schedule_ramp_s = 1\n" + bp(20, 0.04) + bp(200, 0.04), "'schedule_ramp_s' needs [[schedule]]"),
 ]
 
 

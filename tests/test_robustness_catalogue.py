@@ -239,6 +239,21 @@ def _good_wav(library, work):
     _copy_good(library, work, "wav", "drive")
 
 
+def _mixed_profile(extra: str):
+    """A setup writing an invented mixed-mode profile (the bracket table plus ``extra`` TOML) as work/mixed.toml."""
+
+    def setup(library, work):
+        text = "".join(f"[[breakpoints]]\nfrequency = {f}\nasd = {a}\n" for f, a in
+                       ((20, 0.01), (80, 0.04), (350, 0.04), (2000, 0.005)))
+        (work / "mixed.toml").write_text(text + extra)
+
+    return setup
+
+
+_SCHEDULE = "[[schedule]]\nlevel_db = -6.0\nduration_s = 3.0\n[[schedule]]\nlevel_db = 0.0\nduration_s = 3.0\n"
+_TONE = "[[tones]]\nfrequency = 120.0\npeak_g = 1.0\n"
+
+
 @dataclass(frozen=True)
 class Case:
     """One bad input: the arguments, what the error line must contain, how to set the folder up."""
@@ -342,6 +357,25 @@ CASES = [
          ("{work}/p.csv", "written as TOML"), _npy_nan),
     Case("derive-band-reversed", ("derive", "{work}/hole.npy", "--rate", RATE, "--band", 500, 20),
          ("--band", "0 < LO < HI"), _npy_nan),
+    # ---------------------------------------------------------------- generate: mixed-mode profiles
+    Case("missing-duration-without-schedule", ("generate", "{profile}", "-o", "{work}/d.npy", "--rate", RATE),
+         ("--duration", "no duration given", "[[schedule]]")),
+    Case("duration-differs-from-schedule", ("generate", "{work}/mixed.toml", "-o", "{work}/d.npy", "--duration", 5,
+                                            "--rate", RATE),
+         ("--duration", "differs from the profile's schedule (6 s", "omit the duration"), _mixed_profile(_SCHEDULE)),
+    Case("tone-above-nyquist", ("generate", "{work}/mixed.toml", "-o", "{work}/d.npy", "--duration", 5, "--rate", RATE),
+         ("{work}/mixed.toml: tones[1]", "at or above half the sample rate", "use a rate above"),
+         _mixed_profile("[[tones]]\nfrequency = 2600.0\npeak_g = 1.0\n")),
+    Case("low-tone-beyond-stroke-limit", ("generate", "{work}/mixed.toml", "-o", "{work}/d.npy", "--duration", 5,
+                                          "--rate", RATE, "--stroke-limit", 4),
+         ("--stroke-limit", "with its tones", "beyond the 4 mm stroke limit", "refusing"),
+         _mixed_profile("[[tones]]\nfrequency = 20.0\npeak_g = 3.0\n")),  # 2 x 3 g0 / (2 pi 20)^2 = 3.7 mm + 1.2 mm
+    Case("tones-with-loop", ("generate", "{work}/mixed.toml", "-o", "{work}/d.npy", "--duration", 5, "--rate", RATE,
+                             "--loop"),
+         ("--loop", "cannot make a looped record", "drop loop"), _mixed_profile(_TONE)),
+    Case("tones-with-velocity-column", ("generate", "{work}/mixed.toml", "-o", "{work}/d.csv", "--duration", 5,
+                                        "--rate", RATE, "--quantities", "acceleration,velocity"),
+         ("--quantities", "not made for profiles with tones", "acceleration only"), _mixed_profile(_TONE)),
     # ---------------------------------------------------------------- verify: drive files
     Case("verify-missing-file", ("verify", "{work}/absent.flac"),
          ("{work}/absent.flac", "no such drive file")),

@@ -459,6 +459,10 @@ def _draw_asd(figure: Figure, box: tuple, result: Verification, facts, title: st
     if np.any(c.edge):
         ax.plot(f[c.edge], np.clip(measured[c.edge], floor * 1.25, None), ".", color=MUTED, ms=4, zorder=5,
                 label="band-edge lines (judged against the window-smoothed target)")
+    if result.mixed is not None:  # tone lines and narrow bands of a mixed-mode record
+        from vibsynth.analysis.tones import mark_parts_on_asd
+
+        mark_parts_on_asd(ax, result)
     ax.set_xlim(f_lo, f_hi)
     major, minor = frequency_ticks_125(f_lo, f_hi)
     ax.xaxis.set_major_locator(FixedLocator(major))
@@ -572,6 +576,10 @@ def _draw_rms(figure: Figure, box: tuple, result: Verification, facts, title: st
     if values.size:
         ax.plot(starts, values, "o-", color=MEASURED, ms=3.5, lw=1.0, label=f"RMS per {result.window_s:.3g} s window")
     ax.set_ylim(0, max(target * (1 + tol), values.max() if values.size else target) * 1.25)
+    if result.mixed is not None:  # the record's RMS against the level schedule
+        from vibsynth.analysis.tones import draw_schedule_on_rms
+
+        draw_schedule_on_rms(ax, result)
     ax.set_xlabel("time (s)")
     ax.set_ylabel("RMS (g)")
     _headings(figure, box, ax, result, facts, title,

@@ -127,6 +127,14 @@ class Criteria:
         short-window RMS varies by design, so stationarity is judged instead
         by the reverse-arrangements test (a trend test, Bendat & Piersol) on
         the mean squares of windows of at least four burst durations.
+    excluded_bands_hz : tuple of (float, float)
+        Frequency ranges (Hz) left out of the line-by-line ASD rule, widened
+        by the edge margin (tone lines and narrow bands of a mixed-mode
+        record; set by :mod:`vibsynth.analysis.tones`).
+    tone_tolerance_percent : float
+        Allowed error of each tone's amplitude, percent (default 5; common
+        practice, no source), widened to 5 standard deviations of the least-squares
+        estimate on a short or noisy record.
     """
 
     tolerance_low_db: float = -3.0
@@ -146,6 +154,8 @@ class Criteria:
     stationarity: bool = True
     gaussian: bool = True
     burst_s: float | None = None
+    excluded_bands_hz: tuple = ()
+    tone_tolerance_percent: float = 5.0
 
     def __post_init__(self):
         low, high = self.tolerance_low_db, self.tolerance_high_db
@@ -400,7 +410,12 @@ def compare_asd(estimate: WelchEstimate, profile: AsdProfile, criteria: Criteria
     inner = (f > profile.frequency_min_hz + 3 * estimate.resolution_hz) & (
         f < profile.frequency_max_hz - 3 * estimate.resolution_hz)
     window_bias = in_band & ~near_edge & inner & (bias_db > 0.5)
-    judged = in_band & ~near_edge & ~window_bias
+    excluded = np.zeros(f.size, dtype=bool)
+    for low_hz, high_hz in criteria.excluded_bands_hz:  # tone lines, narrow bands: reported, not judged
+        excluded |= (f >= low_hz - margin) & (f <= high_hz + margin)
+    near_edge &= ~excluded
+    window_bias &= ~excluded
+    judged = in_band & ~near_edge & ~window_bias & ~excluded
     if not np.any(judged):  # every line is biased by the window: judge them all line by line instead
         window_bias = np.zeros(f.size, dtype=bool)
         judged = in_band & ~near_edge
@@ -465,6 +480,11 @@ class Verification:
         RMS of successive windows (stationarity), g.
     window_s : float
         Their length, s.
+    mixed : dict or None
+        A mixed-mode record (tones, narrow bands, schedule): what
+        :func:`vibsynth.analysis.tones.verify_mixed_record` measured; the
+        estimate and ``statistics`` are then those of the random part (the
+        tones removed, the schedule divided out).
     """
 
     passed: bool
@@ -483,6 +503,7 @@ class Verification:
     histogram_edges_sigma: np.ndarray = field(default=None, repr=False)
     histogram_density: np.ndarray = field(default=None, repr=False)
     checks: tuple = ()
+    mixed: dict | None = None
 
     @property
     def grms_target(self) -> float:
@@ -545,6 +566,7 @@ class Verification:
             },
             "statistics": dict(self.statistics),
             "criteria": [{k: v for k, v in check.items() if k not in ("reason", "detail")} for check in self.checks],
+            **({"mixed": self.mixed} if self.mixed is not None else {}),
         })
 
 
@@ -693,6 +715,13 @@ def verify_record(
 
     skip_start = _check_skip(skip_start_samples, "skip_start_samples")
     skip_end = _check_skip(skip_end_samples, "skip_end_samples")
+    mixed = getattr(profile, "mixed", None)
+    if mixed is not None and not mixed.empty:  # tones, narrow bands, schedule: separate the parts first
+        from vibsynth.analysis.tones import verify_mixed_record
+
+        return verify_mixed_record(verify_record, source, total, rate_hz, profile, criteria, resolution_hz=resolution_hz,
+                                   target_dof=target_dof, skip_start_samples=skip_start, skip_end_samples=skip_end,
+                                   excerpt_s=excerpt_s)
     steady = total - skip_start - skip_end
     if steady <= 0:
         raise InputError(

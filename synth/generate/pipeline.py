@@ -7,6 +7,7 @@ Stages, for every drive (Gaussian or not)::
       -> memoryless transform g (optional)      (vibsynth.transforms, a MemorylessTransform)
       -> spill-over high-pass (optional)        (vibsynth.generate.highpass)
       -> clip to the transform's peak limit, scale to g
+      -> + tones and narrow bands, x level schedule  (optional; vibsynth.generate.tones)
       -> raised-cosine ramps
       -> rechunk to the caller's chunk size
 
@@ -118,6 +119,9 @@ class Synthesizer:
         Threads that make overlap-add frames (and filter transformed blocks;
         default 1: all in the calling thread).  The samples are the same bit
         for bit whatever the number.
+    mixed : vibsynth.profile.mixed.MixedParts, optional
+        Tones and narrow bands added after the scale, and a level schedule
+        multiplying the sum, before the ramps (:mod:`vibsynth.generate.tones`).
 
     Notes
     -----
@@ -138,10 +142,15 @@ class Synthesizer:
     See the module docstring.
     """
 
-    def __init__(self, plan: SynthesisPlan, seed, workers: int = 1):
+    def __init__(self, plan: SynthesisPlan, seed, workers: int = 1, mixed=None):
         self.plan = plan
         self.root = root_seed_sequence(seed)
         self.workers = check_workers(workers)
+        self._mixed = None
+        if mixed is not None and not mixed.empty:
+            from vibsynth.generate.tones import MixedStage
+
+            self._mixed = MixedStage(mixed, plan.rate_hz, self.root)
         self._record: np.ndarray | None = None
         self._envelope_knots = None
         highpass = plan.spill_highpass
@@ -236,7 +245,9 @@ class Synthesizer:
         return min(w, self.plan.total_samples // 2)
 
     def _ramp(self, columns: np.ndarray, start: int) -> None:
-        """Raised-cosine fade-in/out (in place) of a stretch of columns that starts at sample ``start``."""
+        """Mixed-mode parts, then the raised-cosine fade-in/out (in place) of a stretch of columns from sample ``start``."""
+        if self._mixed is not None:  # tones, narrow bands and the level schedule (acceleration-only records)
+            self._mixed.apply(columns[:, 0], start)
         plan = self.plan
         stop = start + columns.shape[0]
         ramp_in, ramp_out, total = plan.ramp_in_samples, plan.ramp_out_samples, plan.total_samples
@@ -520,7 +531,7 @@ class Synthesizer:
 
 
 # ----------------------------------------------------------------- library
-def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, seed, amplitude: str = "fixed",
+def make_synthesizer(profile: AsdProfile, duration_s: float | None, rate_hz: float, *, seed, amplitude: str = "fixed",
                      resolution_hz: float | None = None, loop: bool = False, ramp_s: float | None = None,
                      quantities="acceleration", memory_budget_bytes: int = DEFAULT_MEMORY_BUDGET_BYTES,
                      kurtosis: float | None = None, skewness: float | None = None, clip: float | None = None,
@@ -557,6 +568,12 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
     See :func:`generate_samples`.
     """
     names, single = parse_quantities(quantities)
+    from vibsynth.generate.schedule import drive_duration_s
+    from vibsynth.generate.tones import check_mixed_request
+
+    mixed = getattr(profile, "mixed", None)
+    duration_s = drive_duration_s(profile, duration_s)
+    check_mixed_request(mixed, rate_hz, names, loop, profile.source or profile.name)
     bursts = check_kurtosis_model(kurtosis_model, kurtosis, skewness, clip, loop, burst_s)
     transform = None
     if not bursts and not (kurtosis is None and skewness is None and clip is None):
@@ -576,7 +593,7 @@ def make_synthesizer(profile: AsdProfile, duration_s: float, rate_hz: float, *, 
         from vibsynth.generate.modulation import burst_plan
 
         plan = burst_plan(plan, profile.frequency_min_hz, kurtosis, burst_s)
-    return Synthesizer(plan, seed, workers), single
+    return Synthesizer(plan, seed, workers, mixed=mixed), single
 
 
 #: The ways a kurtosis target is reached: a memoryless transform of the stream, or a burst envelope.
@@ -629,7 +646,7 @@ def check_kurtosis_model(kurtosis_model: str, kurtosis, skewness, clip, loop: bo
 
 def generate_samples(
     profile: AsdProfile,
-    duration_s: float,
+    duration_s: float | None,
     rate_hz: float,
     *,
     seed,
@@ -651,9 +668,13 @@ def generate_samples(
     Parameters
     ----------
     profile : AsdProfile
-        Target ASD in g^2/Hz.
-    duration_s : float
-        Duration in s (rounded to whole samples).
+        Target ASD in g^2/Hz.  Its optional mixed-mode parts
+        (``profile.mixed``: tones, narrow bands, a level schedule; see
+        :mod:`vibsynth.profile.mixed`) are added after the transform and the
+        scale, and the schedule multiplies the sum (:mod:`vibsynth.generate.tones`).
+    duration_s : float or None
+        Duration in s (rounded to whole samples); None with a profile whose
+        level schedule sets it (``profile.mixed.schedule``).
     rate_hz : float
         Sample rate in Hz (> 2 x the top frequency; below 2.56 x it a
         :class:`~vibsynth.errors.VibsynthWarning` is issued).
@@ -733,7 +754,7 @@ def generate_samples(
 
 def iter_chunks(
     profile: AsdProfile,
-    duration_s: float,
+    duration_s: float | None,
     rate_hz: float,
     *,
     seed,

@@ -110,7 +110,7 @@ def profile_block(profile, source: str | None) -> dict:
     Closed-form g RMS, velocity and displacement of a log-log ASD (see
     :mod:`vibsynth.profile.asd`).
     """
-    return {
+    block = {
         "name": profile.name,
         "description": profile.description or None,
         "source": source or None,
@@ -121,6 +121,11 @@ def profile_block(profile, source: str | None) -> dict:
         "displacement_rms_m": profile.displacement_rms_m,
         "displacement_peak_to_peak_3sigma_m": profile.displacement_peak_to_peak_3sigma_m,
     }
+    mixed = getattr(profile, "mixed", None)
+    if mixed is not None:  # tones, narrow bands, level schedule (vibsynth.profile.mixed); absent otherwise
+        block["mixed"] = {**mixed.to_dict(), "random_grms_g": profile.grms,
+                          "total_grms_g": mixed.total_rms_g(profile.grms), "tone_peak_sum_g": mixed.peak_sum_g}
+    return block
 
 
 @dataclass(frozen=True)
@@ -486,8 +491,15 @@ class Sidecar:
         except (KeyError, TypeError, ValueError):
             raise InputError("profile.breakpoints must be a list of {frequency_hz, asd_g2_per_hz}", side,
                              "profile") from None
+        mixed = None
+        if record.get("mixed") is not None:
+            from vibsynth.profile.mixed import MixedParts
+
+            if not isinstance(record["mixed"], dict):
+                raise InputError("profile.mixed must be a JSON object", side, "profile.mixed")
+            mixed = MixedParts.from_dict(record["mixed"], side)
         return AsdProfile(frequencies, values, name=str(record.get("name") or "sidecar profile"),
-                          description=str(record.get("description") or ""), source=side)
+                          description=str(record.get("description") or ""), source=side, mixed=mixed)
 
 
 def _number_or_none(value):

@@ -109,6 +109,8 @@ class AsdProfile:
     name: str = "profile"
     description: str = ""
     source: str = field(default="", compare=False)
+    #: Mixed-mode parts (tones, narrow bands, level schedule; :mod:`vibsynth.profile.mixed`) or None.
+    mixed: object = field(default=None, repr=False)
 
     def __post_init__(self):
         f = np.array(self.frequencies_hz, dtype=float).ravel()
@@ -491,7 +493,8 @@ class AsdProfile:
         if not (math.isfinite(factor) and factor > 0):
             raise InputError(f"ASD scale factor {asd_factor!r} must be a finite number > 0", self.source or self.name)
         return AsdProfile(
-            self.frequencies_hz, self.asd_g2_per_hz * factor, name=self.name, description=self.description, source=self.source
+            self.frequencies_hz, self.asd_g2_per_hz * factor, name=self.name, description=self.description, source=self.source,
+            mixed=self.mixed,
         )
 
     def scaled_db(self, level_db: float) -> "AsdProfile":
@@ -524,6 +527,7 @@ class AsdProfile:
             name=name,
             description=self.description if description is None else description,
             source=self.source,
+            mixed=self.mixed,
         )
 
     # --------------------------------------------------------------- export

@@ -41,6 +41,7 @@ is refused.  The TOML ``unit`` key accepts the same spellings.
 from __future__ import annotations
 
 import csv
+import dataclasses
 import difflib
 import io
 import math
@@ -54,7 +55,8 @@ from vibsynth.errors import InputError
 from vibsynth.profile.asd import AsdProfile
 from vibsynth.profile.units import ACCEPTED_SPELLINGS, G2_PER_HZ, asd_unit, asd_units_named_in
 
-_TOP_KEYS = ("name", "description", "unit", "level_db", "grms", "notes", "breakpoints", "amplitude")
+_TOP_KEYS = ("name", "description", "unit", "level_db", "grms", "notes", "breakpoints", "amplitude",
+             "tones", "narrow_bands", "schedule", "schedule_ramp_s")  # the last four: vibsynth.profile.mixed
 _POINT_KEYS = ("frequency", "asd", "slope_db_per_octave")
 
 PRESET_PACKAGE = "vibsynth.presets"
@@ -182,6 +184,11 @@ def profile_from_table(data: dict, source: str = "<toml>", prefix: str = "", all
         profile = profile.scaled_db(_number(data["level_db"], source, prefix + "level_db", "level_db (dB)"))
     if "grms" in data:
         profile = profile.scaled_to_grms(_number(data["grms"], source, prefix + "grms", "grms (g)"))
+    from vibsynth.profile.mixed import parse_mixed
+
+    mixed = parse_mixed(data, source)  # tones, narrow bands, level schedule (None when absent)
+    if mixed is not None:
+        profile = dataclasses.replace(profile, mixed=mixed)
     return profile
 
 
@@ -409,11 +416,13 @@ def read_profile(spec: str | os.PathLike) -> AsdProfile:
 
 # ------------------------------------------------------------------ writing
 def format_toml_profile(profile: AsdProfile) -> str:
-    """The profile as vibsynth TOML (ASD values at every breakpoint, g^2/Hz)."""
+    """The profile as vibsynth TOML (ASD values at every breakpoint, g^2/Hz; mixed-mode sections after them)."""
+    schedule = getattr(getattr(profile, "mixed", None), "schedule", None)
     lines = [
         f"name = {_toml_string(profile.name)}",
         f"description = {_toml_string(profile.description)}",
         'unit = "g^2/Hz"',
+        *([f"schedule_ramp_s = {float(schedule.ramp_s)!r}"] if schedule is not None else []),
         f"# overall {profile.grms:.6g} g RMS, band {profile.frequency_min_hz:g}-{profile.frequency_max_hz:g} Hz",
     ]
     slopes = profile.slopes_db_per_octave
@@ -423,7 +432,9 @@ def format_toml_profile(profile: AsdProfile) -> str:
         lines.append(f"frequency = {float(frequency)!r}")
         comment = "" if index == 0 else f"  # {slopes[index - 1]:+.3f} dB/octave from the previous point"
         lines.append(f"asd = {float(asd)!r}{comment}")
-    return "\n".join(lines) + "\n"
+    from vibsynth.profile.mixed import format_mixed_toml
+
+    return "\n".join(lines) + "\n" + format_mixed_toml(getattr(profile, "mixed", None))
 
 
 def format_csv_profile(profile: AsdProfile) -> str:
