@@ -25,7 +25,6 @@ from pathlib import Path
 
 import numpy as np
 
-from vibsynth import __version__
 from vibsynth.errors import InputError
 from vibsynth.io import drivefile
 from vibsynth.io.sidecar import Sidecar, profile_block
@@ -45,7 +44,7 @@ def _refuse_nongaussian(request) -> None:
             )
 
 
-def prepare_channel_drive(profile, request):
+def prepare_channel_drive(profile, request, refuse_when_full: bool = True):
     """Check and plan a multi-channel drive request; nothing is written.
 
     Parameters
@@ -81,12 +80,10 @@ def prepare_channel_drive(profile, request):
     ----------
     Shinozuka (1971); Smallwood & Paez (1993); see :mod:`vibsynth.generate.channels`.
     """
-    import scipy
-
     from vibsynth.generate import pipeline
     from vibsynth.generate import plan as synthesis
     from vibsynth.generate.channels import make_channel_plan
-    from vibsynth.jobs import _SCALING_KEYS, PreparedDrive, default_workers
+    from vibsynth.jobs import SEED_DERIVATION, PreparedDrive, default_workers, request_seed, sidecar_options, tool_record
 
     _refuse_nongaussian(request)
     file_format = drivefile.drive_format(request.output)
@@ -104,30 +101,19 @@ def prepare_channel_drive(profile, request):
         memory_budget_bytes=request.memory_budget_mb * 2**20,
     )
     drivefile.check_drive_request(request.output, rate_hz=plan.rate_hz, samples=plan.total_samples,
-                                  subtype=subtype, channels=plan.channels)
-    seed = request.seed
-    if seed is None:
-        seed = int(np.random.SeedSequence().entropy % 2**53)
+                                  subtype=subtype, channels=plan.channels, check_space=False)
+    storage = drivefile.storage_plan(request.output, file_format, subtype, plan.total_samples, ("acceleration",),
+                                     plan.rate_hz, channels=len(plan.channels))
+    if refuse_when_full and not storage["fits"]:
+        raise drivefile.space_refusal(request.output, storage)
+    seed = request_seed(request)
     workers = default_workers() if request.workers is None else request.workers
     synthesizer = pipeline.Synthesizer(plan, seed, workers)
     factors = plan.channel_factors
     grms_lines = np.sqrt(2.0 * np.sum(np.abs(factors) ** 2, axis=(0, 2)))
-    options = {
-        "amplitude": request.amplitude,
-        "resolution_hz": request.resolution_hz,
-        "loop": bool(request.loop),
-        "quantities": ["acceleration"],
-        "full_scale_g": request.full_scale_g,
-        "ramp_s": request.ramp_s,
-        "memory_budget_mib": request.memory_budget_mb,
-        "kurtosis": None,
-        "skewness": None,
-        "clip": None,
-        **{_SCALING_KEYS.get(key, key): value for key, value in request.scaling.items()},
-    }
+    options = sidecar_options(request, ("acceleration",))
     derivation = (
-        "numpy SeedSequence(seed) children: overlap-add frame j uses spawn_key (0, j), a periodic record spawn_key "
-        f"(1,); PCG64; {len(plan.channels)} independent sources, one standard normal pair per line each (source "
+        SEED_DERIVATION + f"; {len(plan.channels)} independent sources, one standard normal pair per line each (source "
         "by source), coloured at each line by a factor H of the spectral density matrix (H H^H = conj(G) df/2; "
         "Cholesky, eigen-decomposition where only semidefinite)"
     )
@@ -150,14 +136,14 @@ def prepare_channel_drive(profile, request):
         },
         profile=profile_block(envelope, request.profile_source),
         warnings=tuple(plan.warnings),
-        tool={"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__},
+        tool=tool_record(),
         channels=tuple({"name": name, "profile": profile_block(channel, None)}
                        for name, channel in zip(profile.channel_names, profile.channels)),
         pairs=_pair_records(profile),
     )
     return PreparedDrive(request=request, profile=profile, plan=plan, synthesizer=synthesizer,
                          file_format=file_format, subtype=subtype, sidecar=sidecar, seed=seed,
-                         warnings=tuple(plan.warnings), design=None)
+                         warnings=tuple(plan.warnings), design=None, storage=storage)
 
 
 def _pair_records(profile) -> tuple:

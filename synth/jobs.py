@@ -226,14 +226,12 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     Rev. 44(4)); see :mod:`vibsynth.generate.pipeline`.  Non-Gaussian drives: Winterstein
     (1988), Yamazaki & Shinozuka (1988); see :mod:`vibsynth.generate.design`.
     """
-    import scipy
-
     from vibsynth.profile.multichannel import MultiChannelProfile
 
     if isinstance(profile, MultiChannelProfile):  # correlated channels: vibsynth.channel_jobs
         from vibsynth.channel_jobs import prepare_channel_drive
 
-        return prepare_channel_drive(profile, request)
+        return prepare_channel_drive(profile, request, refuse_when_full)
     from vibsynth.generate import design as nongaussian
     from vibsynth.generate import pipeline
     from vibsynth.generate import plan as synthesis
@@ -293,30 +291,12 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         from vibsynth.generate.modulation import burst_plan
 
         plan = burst_plan(plan, profile.frequency_min_hz, request.kurtosis, request.burst_s)
-    seed = request.seed
-    if seed is None:
-        seed = int(np.random.SeedSequence().entropy % 2**53)  # exact in any JSON reader
+    seed = request_seed(request)
     workers = default_workers() if request.workers is None else request.workers
     synthesizer = pipeline.Synthesizer(plan, seed, workers, mixed=mixed)
-    options = {
-        "amplitude": request.amplitude,
-        "resolution_hz": request.resolution_hz,
-        "loop": bool(request.loop),
-        "quantities": list(names),
-        "full_scale_g": request.full_scale_g,
-        "ramp_s": request.ramp_s,
-        "memory_budget_mib": request.memory_budget_mb,
-        "kurtosis": request.kurtosis,
-        "skewness": request.skewness,
-        "clip": request.clip,
-        "kurtosis_model": "bursts" if bursts else "transform",
-        "burst_s": plan.modulation.burst_s if bursts else None,
-        **{_SCALING_KEYS.get(key, key): value for key, value in request.scaling.items()},
-    }
-    seed_derivation = (
-        "numpy SeedSequence(seed) children: overlap-add frame j uses spawn_key (0, j), "
-        "a periodic record spawn_key (1,); PCG64; one standard normal pair per line"
-    )
+    options = sidecar_options(request, names, kurtosis_model="bursts" if bursts else "transform",
+                              burst_s=plan.modulation.burst_s if bursts else None)
+    seed_derivation = SEED_DERIVATION + "; one standard normal pair per line"
     if bursts:
         seed_derivation += "; burst envelope from spawn_key (2,) (see modulation)"
     if plan.spill_highpass is not None and design is None:  # a non-Gaussian drive records it with its compensation
@@ -353,7 +333,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         compensation=design.compensation_record() if design is not None else None,
         modulation=plan.modulation.to_dict() if bursts else None,
         warnings=tuple(plan.warnings),
-        tool={"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__},
+        tool=tool_record(),
     )
     return PreparedDrive(
         request=request,
@@ -368,6 +348,75 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         design=design,
         storage=storage,
     )
+
+
+#: How a record's randomness follows from its seed (the start of every sidecar's ``plan.seed_derivation``).
+SEED_DERIVATION = ("numpy SeedSequence(seed) children: overlap-add frame j uses spawn_key (0, j), "
+                   "a periodic record spawn_key (1,); PCG64")
+
+
+def request_seed(request: DriveRequest) -> int:
+    """The request's seed, or a fresh one (below 2**53, so any JSON reader keeps it exact).
+
+    Examples
+    --------
+    >>> request_seed(DriveRequest("d.npy", 1.0, 1024.0, seed=7))
+    7
+
+    References
+    ----------
+    numpy.random.SeedSequence (fresh entropy from the operating system).
+    """
+    if request.seed is not None:
+        return int(request.seed)
+    return int(np.random.SeedSequence().entropy % 2**53)
+
+
+def sidecar_options(request: DriveRequest, quantities, kurtosis_model: str = "transform",
+                    burst_s: float | None = None) -> dict:
+    """The sidecar's ``options`` block of a drive request (every option that affects the samples).
+
+    Examples
+    --------
+    >>> sidecar_options(DriveRequest("d.npy", 1.0, 1024.0), ("acceleration",))["memory_budget_mib"]
+    256.0
+
+    References
+    ----------
+    None (record keeping).
+    """
+    return {
+        "amplitude": request.amplitude,
+        "resolution_hz": request.resolution_hz,
+        "loop": bool(request.loop),
+        "quantities": list(quantities),
+        "full_scale_g": request.full_scale_g,
+        "ramp_s": request.ramp_s,
+        "memory_budget_mib": request.memory_budget_mb,
+        "kurtosis": request.kurtosis,
+        "skewness": request.skewness,
+        "clip": request.clip,
+        "kurtosis_model": kurtosis_model,
+        "burst_s": burst_s,
+        **{_SCALING_KEYS.get(key, key): value for key, value in request.scaling.items()},
+    }
+
+
+def tool_record() -> dict:
+    """The sidecar's ``tool`` block: name and versions of the tool and its numerical libraries.
+
+    Examples
+    --------
+    >>> tool_record()["name"]
+    'vibsynth'
+
+    References
+    ----------
+    None (record keeping).
+    """
+    import scipy
+
+    return {"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__}
 
 
 def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:

@@ -221,7 +221,7 @@ def free_bytes(folder) -> int | None:
 
 
 def storage_plan(path, file_format: str, subtype: str, samples: int, quantities=("acceleration",),
-                 rate_hz: float = 1.0) -> dict:
+                 rate_hz: float = 1.0, channels: int = 1) -> dict:
     """What writing a drive file will take on disk, and whether its folder has the room.
 
     Parameters
@@ -230,6 +230,9 @@ def storage_plan(path, file_format: str, subtype: str, samples: int, quantities=
         Destination file (its folder is probed for free space).
     file_format, subtype, samples, quantities, rate_hz
         As for :func:`estimate_file_bytes`.
+    channels : int
+        Acceleration columns of a multi-channel drive (each counted as large
+        as one channel's file, an upper bound).
 
     Returns
     -------
@@ -251,6 +254,8 @@ def storage_plan(path, file_format: str, subtype: str, samples: int, quantities=
     See :func:`estimate_file_bytes` and :func:`free_bytes`.
     """
     size, exact = estimate_file_bytes(file_format, subtype, samples, quantities, rate_hz)
+    if channels > 1:  # every channel as large as one acceleration file (a .csv's time column counted again)
+        size, exact = channels * size, False
     needed = int(size) + SIDECAR_ALLOWANCE_BYTES
     free = free_bytes(Path(path).parent)
     return {"bytes": int(size), "bytes_exact": bool(exact), "sidecar_allowance_bytes": SIDECAR_ALLOWANCE_BYTES,
@@ -415,10 +420,8 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
     if path.is_dir():
         raise InputError("is a folder; give a file name such as drive.flac", str(path))
     if check_space:
-        size, exact = estimate_file_bytes(file_format, subtype, count, quantities, rate)
-        if channels:  # every channel as large as one acceleration column (the time column of a .csv counted again)
-            size = SIDECAR_ALLOWANCE_BYTES + len(channels) * size
-        check_free_space(path, size, exact and not channels)
+        storage = storage_plan(path, file_format, subtype, count, quantities, rate, channels=max(len(channels), 1))
+        check_free_space(path, storage["bytes"], storage["bytes_exact"])
     return {"format": file_format, "subtype": subtype, "quantities": quantities, "rate_hz": rate,
             "samples": count, "scale": scale, "channels": channels}
 

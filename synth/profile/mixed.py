@@ -66,7 +66,7 @@ Logarithmic and linear sweep laws and their phase integrals: IEC 60068-2-6
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
