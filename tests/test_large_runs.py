@@ -264,3 +264,20 @@ def test_verify_bar_on_a_terminal(tmp_path, profile_path, capsys, small_threshol
     monkeypatch.setattr(common, "is_interactive_stderr", lambda: True)
     status, out, err = _run(capsys, "verify", path)
     assert status == 0 and "verifying" in err and _progress_lines(err) == []
+
+
+@pytest.mark.parametrize("suffix", ["npy", "flac"])
+def test_dry_run_of_a_multichannel_profile_bounds_the_file(tmp_path, capsys, suffix):
+    # a three-channel drive is at most three single-channel files; the bound must hold for the file written
+    example = Path(__file__).parent.parent / "examples" / "three-axis-mount.toml"
+    destination = tmp_path / f"drive.{suffix}"
+    status, out, err = _run(capsys, "generate", example, "-o", destination, "--duration", 10, "--rate", RATE,
+                            "--seed", 4, "--dry-run", "--json")
+    assert status == 0, err
+    report = json.loads(out)
+    assert DRY_RUN_KEYS <= set(report) and report["fits"] is True
+    assert _listing(tmp_path) == []
+    status, _, err = _run(capsys, "generate", example, "-o", destination, "--duration", 10, "--rate", RATE,
+                          "--seed", 4, "-q")
+    assert status == 0, err
+    assert 0 < destination.stat().st_size <= report["bytes"]
