@@ -53,6 +53,7 @@ OPTION_NAMES = {
     "rate": "--rate",
     "rate_hz": "--rate",
     "records": "--records",
+    "report_dir": "--report",
     "resolution": "--resolution",
     "resolution_hz": "--resolution",
     "scale": "--scale",
@@ -88,10 +89,15 @@ def cli_message(error: InputError) -> str:
     words ("rate 4000 Hz must exceed ...") stay: the field in front names the option.
     """
     source = str(error.source) if error.source else None
-    if source is not None and source not in OPTION_NAMES:
-        return error.one_line()
     text = " ".join(str(error.message).split())
     text = _CODE_NAME.sub(lambda m: OPTION_NAMES.get(m.group(1), m.group(0)), text)
+    if source is not None and source not in OPTION_NAMES:
+        # about a file: a snake_case location is a parameter checked while reading it (``resolution_hz``);
+        # a plain or dotted one is a key of the file itself (a sidecar's ``scale``), printed as it is
+        location = str(error.location) if error.location else None
+        if location is not None and "_" in location and "." not in location:
+            location = option_name(location)
+        return InputError(text, source, location).one_line()
     text = _SNAKE_NAME.sub(lambda m: OPTION_NAMES.get(m.group(1), m.group(1)), text)
     return InputError(text, option_name(error.source), option_name(error.location)).one_line()
 

@@ -243,10 +243,10 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     if len(names) > 1 and file_format not in ("csv", "npy"):
         raise InputError(
             f"velocity/displacement columns need a .csv or .npy file; .{file_format} holds acceleration only",
-            "--quantities",
+            "quantities",
         )
     if request.full_scale_g is not None and file_format not in ("wav", "flac"):
-        raise InputError(f"--full-scale applies to .wav/.flac; .{file_format} holds values in g", "--full-scale")
+        raise InputError(f"`full_scale_g` applies to .wav/.flac; .{file_format} holds values in g", "full_scale_g")
     bursts = pipeline.check_kurtosis_model(request.kurtosis_model, request.kurtosis, request.skewness, request.clip,
                                            request.loop, request.burst_s)
     transform = None if bursts else plan_transform(request.kurtosis, request.skewness, request.clip)

@@ -280,7 +280,7 @@ def peak_theory_row(profile: AsdProfile, line_spectrum, resolution_hz: float, ra
         raise InputError(
             f"a {duration:g} s record holds {nu0 * duration:.3g} expected zero up-crossings; "
             "peak statistics need many (give a longer duration)",
-            "--duration",
+            "duration_s",
         )
     limit = None
     if transform is not None and hasattr(transform, "crest_factor"):
@@ -475,7 +475,7 @@ def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, des
     Monte-Carlo simulation by spectral representation (Shinozuka & Jan 1972).
     """
     if isinstance(records, bool) or not isinstance(records, (int, np.integer)) or records < 1:
-        raise InputError(f"records {records!r} must be a whole number >= 1", "--records")
+        raise InputError(f"records {records!r} must be a whole number >= 1", "records")
     entropy = seed_entropy(root_seed_sequence(seed))
     step = progress if progress is not None else (lambda samples: None)
     thresholds = np.asarray(K_SIGMA_LEVELS) * float(rms_g) * (1.0 + _LEVEL_SLACK)
@@ -688,7 +688,7 @@ def peak_report(profile: AsdProfile, duration_s: float, rate_hz: float | None = 
     """
     rate = default_rate_hz(profile) if rate_hz is None else float(rate_hz)
     if isinstance(records, bool) or not isinstance(records, (int, np.integer)) or records < 0:
-        raise InputError(f"records {records!r} must be a whole number >= 0", "--records")
+        raise InputError(f"records {records!r} must be a whole number >= 0", "records")
     options = {"amplitude": amplitude}
     if memory_budget_bytes is not None:
         options["memory_budget_bytes"] = int(memory_budget_bytes)

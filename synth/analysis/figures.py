@@ -1077,7 +1077,7 @@ def write_report_figures(result: Verification, folder: str | os.PathLike, title:
     folder = Path(folder)
     if not folder.is_dir():
         raise InputError(f"report folder {str(folder)!r} does not exist or is not a folder; create it first",
-                         location="--report")
+                         location="report_dir")
     paper = str(paper).lower()
     if paper not in PAPER_SIZES_PT:
         raise InputError(f"paper size {paper!r} is not known; give a4 or letter", location="paper")

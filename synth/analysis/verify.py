@@ -162,17 +162,17 @@ class Criteria:
         if not (math.isfinite(low) and math.isfinite(high) and low < 0 < high):
             raise InputError(
                 f"ASD tolerance band ({low:g}, {high:+g}) dB must have a negative lower and a positive upper limit",
-                location="--tolerance",
+                location="tolerance_db",
             )
         if not (math.isfinite(self.grms_tolerance_percent) and 0 < self.grms_tolerance_percent < 100):
             raise InputError(
                 f"g RMS tolerance {self.grms_tolerance_percent:g} % must be between 0 and 100",
-                location="--grms-tolerance",
+                location="grms_tolerance_percent",
             )
         if not (0 < self.min_fraction_within <= 1):
             raise InputError(
                 f"fraction of lines within tolerance {self.min_fraction_within:g} must be in (0, 1]",
-                location="--min-fraction",
+                location="min_fraction_within",
             )
         if not (math.isfinite(self.edge_exclusion_resolutions) and self.edge_exclusion_resolutions >= 0):
             raise InputError(
@@ -422,8 +422,8 @@ def compare_asd(estimate: WelchEstimate, profile: AsdProfile, criteria: Criteria
     if not np.any(judged):
         raise InputError(
             f"no spectral line can be judged: resolution {estimate.resolution_hz:g} Hz is too coarse for the band "
-            f"{profile.frequency_min_hz:g}-{profile.frequency_max_hz:g} Hz; ask for a finer --resolution or a longer record",
-            location="--resolution",
+            f"{profile.frequency_min_hz:g}-{profile.frequency_max_hz:g} Hz; ask for a finer `resolution_hz` or a longer record",
+            location="resolution_hz",
         )
     with np.errstate(divide="ignore", invalid="ignore"):
         deviation = np.where(in_band, 10.0 * np.log10(estimate.asd / np.where(in_band, target, 1.0)), np.nan)
@@ -696,7 +696,7 @@ def verify_record(
     if isinstance(rate_hz, bool) or not isinstance(rate_hz, numbers.Real) or not (
         math.isfinite(rate_hz) and rate_hz > 0
     ):
-        raise InputError(f"rate {rate_hz!r} Hz must be a finite number > 0", location="--rate")
+        raise InputError(f"rate {rate_hz!r} Hz must be a finite number > 0", location="rate_hz")
     if callable(chunks):
         source = chunks
         if isinstance(n_samples, bool) or not isinstance(n_samples, numbers.Integral) or int(n_samples) < 1:
@@ -732,7 +732,7 @@ def verify_record(
         raise InputError(
             f"the record's rate {rate_hz:g} Hz cannot hold the profile's top frequency "
             f"{profile.frequency_max_hz:g} Hz (needs a rate above {2 * profile.frequency_max_hz:g} Hz)",
-            location="--rate",
+            location="rate_hz",
         )
     # By default the finest resolution considered is an eighth of the lowest band frequency and a
     # sixteenth of the band width and of the narrowest segment (so a notch or a narrow band is drawn
