@@ -133,10 +133,14 @@ min_fraction = SharedOption(
                       "lower values relax the rule and the report says so).")
 welch_resolution = SharedOption(
     "--resolution", type=types.positive(), default=None, metavar="HZ",
-    help="Welch line spacing in Hz (default: the finest giving --dof).")
+    help="Welch line spacing in Hz. Default: fine enough for the profile's narrowest feature (the smallest of "
+         "lowest frequency / 8, band width / 16 and narrowest segment / 16), coarsened only as far as the "
+         "record needs to reach --dof; a finer spacing shows narrow tones better, at fewer dof.")
 dof = SharedOption(
     "--dof", type=types.FiniteFloatRange(min=2), default=None, metavar="N",
-    help="Statistical degrees of freedom to aim at (default 120; a warning says when the record is too short).")
+    help="Fewest statistical degrees of freedom per line (default 120): the default spacing is coarsened until "
+         "the record reaches them; a longer record keeps the feature spacing with more dof. A note says when "
+         "the record is too short.")
 
 #: Paper size of report.pdf (run, verify --report).
 paper = SharedOption("--paper", type=click.Choice(["a4", "letter"], case_sensitive=False), default="a4",

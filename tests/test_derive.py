@@ -88,6 +88,10 @@ def test_a_six_db_step_halfway_is_judged_not_stationary(tmp_path):
         result = derive_record(open_drive(path), points=6)
     assert not result.stationary
     assert result.stationarity["reverse_arrangements"] < result.stationarity["limit_low"]
+    # the step alone raises the kurtosis (a two-level Gaussian mixture with variances 1 and 4:
+    # 3 (1 + 16) / 2 / ((1 + 4) / 2)^2 = 4.08); that is no peakiness for a drive to copy
+    assert result.kurtosis == pytest.approx(4.08, abs=0.2)
+    assert result.amplitude_model == "gaussian" and result.amplitude_section()["model"] == "gaussian"
 
 
 def test_reverse_arrangements_agree_with_kendall_tau_and_the_table():

@@ -533,8 +533,13 @@ class DerivedRecord:
 
         Gaussian within 0.2 of kurtosis 3 and skewness 0 (common practice, no
         source); bursts when a burst time scale was found (Smallwood 2005);
-        else a memoryless transform (Winterstein 1988).
+        else a memoryless transform (Winterstein 1988).  A record judged not
+        stationary gets ``gaussian``: its kurtosis then measures changes of
+        level (a 6 dB step alone gives about 4), not peakiness a drive should
+        copy; split the recording into stationary parts instead.
         """
+        if not self.stationary:
+            return "gaussian"
         if abs(self.kurtosis - 3.0) <= GAUSSIAN_KURTOSIS_BAND and abs(self.skewness) <= GAUSSIAN_SKEWNESS_BAND:
             return "gaussian"
         if self.kurtosis > 3.0 and self.burst_s is not None and abs(self.skewness) <= GAUSSIAN_SKEWNESS_BAND:
