@@ -208,9 +208,20 @@ class ChannelVerification:
         from vibsynth.analysis.channels import (BAND_SIGMAS, COHERENCE_TOLERANCE, PAIR_MIN_FRACTION,
                                                 PHASE_MIN_COHERENCE, PHASE_TOLERANCE_DEG)
 
+        channels = [{"name": n, **v.to_dict()} for n, v in zip(self.channel_names, self.channels)]
+        reasons = [f"channel {c['name']}: {reason}" for c in channels for reason in c.get("reasons", [])]
+        for pair in self.pairs:
+            if not pair.passed:
+                a, b = pair.channels
+                reasons.append(f"pair {a}-{b}: {pair.fraction_within:.1%} of lines inside the coherence and phase "
+                               f"bands (need {PAIR_MIN_FRACTION:.0%})")
+        failed = [f"channel {c['name']}" for c in channels if not c.get("pass")]
+        failed += [f"pair {p.channels[0]}-{p.channels[1]}" for p in self.pairs if not p.passed]
         return _json_safe({
             "pass": self.passed,
-            "channels": [{"name": n, **v.to_dict()} for n, v in zip(self.channel_names, self.channels)],
+            "failed": failed,
+            "reasons": reasons,
+            "channels": channels,
             "pairs": [p.to_dict() for p in self.pairs],
             "pair_rule": {
                 "coherence": f"expected estimate gamma^2 + (1 - gamma^2)^2 / n_d (bias, Bendat & Piersol 2010) "

@@ -322,6 +322,11 @@ def test_verify_passes_a_good_drive_and_fails_a_wrong_pair(tmp_path):
     wrong.write_text(THREE.replace("coherence = 0.5", "coherence = 0.2"))
     status, out, _ = _quiet_main(["verify", drive, "--profile", wrong])
     assert status == 1 and "pair x-z" in out and "FAIL" in out
+    # the JSON says which part failed, at the top level as a single-channel verification does
+    status, out, _ = _quiet_main(["verify", drive, "--profile", wrong, "--json"])
+    data = json.loads(out)
+    assert status == 1 and not data["pass"] and "pair x-z" in data["failed"]
+    assert any(reason.startswith("pair x-z:") for reason in data["reasons"])
 
 
 def test_cross_spectral_accumulator_equals_scipy_csd_in_any_chunks():
