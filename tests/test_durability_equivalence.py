@@ -39,18 +39,24 @@ def test_equivalence_round_trip_two_environments():
         warnings.simplefilter("always")
         test = equivalent_test([(cabinet, 36000.0), (crane, 18000.0)], 3600.0, points=8, grid_points=30)
     ratio = test.fds_ratio
-    # never below the combined damage, and equal to it at the controlling natural frequency
-    assert np.min(ratio) == pytest.approx(1.0, abs=1e-9)
+    # never below the combined damage on the fitting grid ...
     assert np.all(ratio >= 1.0 - 1e-9)
     assert test.controlling_fn_hz in test.fn_hz
-    # the tightening step lowers breakpoints until the test touches the combined FDS in more than one place
-    assert np.count_nonzero(ratio < 1.01) >= 2
-    # recomputed independently of the function's own bookkeeping: the summed FDS of the environments
+    # recomputed independently of the function's own bookkeeping on its (check) grid, 8 times finer than
+    # the 30 fitting points: the summed FDS of the environments is touched (ratio 1) and never exceeded ...
+    assert test.fn_hz.size == 8 * 29 + 1
     fn = test.fn_hz
     combined = (profile_severity(cabinet, 36000.0, fn).fds_narrowband
                 + profile_severity(crane, 18000.0, fn).fds_narrowband)
-    again = profile_severity(test.profile, 3600.0, fn).fds_narrowband
-    assert np.min(again / combined) == pytest.approx(1.0, abs=1e-9)
+    again = profile_severity(test.profile, 3600.0, fn).fds_narrowband / combined
+    assert np.min(again) == pytest.approx(1.0, abs=1e-9)
+    # ... and between its points at most 0.2 % below (0.03 % in ASD at b = 8)
+    finer = np.geomspace(fn[0], fn[-1], 8 * (fn.size - 1) + 1)
+    combined = (profile_severity(cabinet, 36000.0, finer).fds_narrowband
+                + profile_severity(crane, 18000.0, finer).fds_narrowband)
+    assert np.min(profile_severity(test.profile, 3600.0, finer).fds_narrowband / combined) >= 1.0 - 2e-3
+    # the tightening step lowered breakpoints until the test followed the combined FDS closely in places
+    assert np.count_nonzero(again < 1.35) >= 2
     assert len(test.profile.frequencies_hz) <= 8
     # compressing 10 h and 5 h into 1 h raises the extremes: the over-test warning says so
     assert np.max(test.ers_ratio) > 1.0
@@ -88,3 +94,19 @@ def test_equivalent_test_errors_name_parameters():
         equivalent_test([(flat, 100.0)], -1.0)
     with pytest.raises(InputError, match="environments"):
         equivalent_test([(flat,)], 100.0)
+
+
+def test_equivalent_test_fds_is_never_below_between_grid_points():
+    # Two environments whose combined FDS bends at a band corner between fitting-grid points (found by an
+    # independent check: 3 % below at 11.9 Hz with the 60-point grid).  The narrow-band FDS (Lalanne,
+    # vol. 5) of the written test, on a grid 30 times finer than the fitting grid, must stay >= the
+    # combined FDS (to the closed forms' rounding).
+    corner = AsdProfile([20.0, 80.0, 350.0, 2000.0], [0.002, 0.04, 0.04, 0.001], name="corner (invented)")
+    envs = [(vibsynth.read_profile("railyard-cabinet"), 7200.0), (corner, 1800.0)]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", VibsynthWarning)
+        test = equivalent_test(envs, 900.0)
+    fn = np.geomspace(test.fn_hz[0], test.fn_hz[-1], 30 * test.fn_hz.size)
+    combined = sum(profile_severity(p, t, fn).fds_narrowband for p, t in envs)
+    ratio = profile_severity(test.profile, 900.0, fn).fds_narrowband / combined
+    assert ratio.min() >= 1.0 - 1e-4

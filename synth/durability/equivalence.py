@@ -74,6 +74,9 @@ __all__ = ["Environment", "EquivalentTest", "equivalent_test", "compress_profile
 
 _MAX_ITERATIONS = 15
 _ITERATION_TOLERANCE = 1e-2
+#: The final check of the fitted test's FDS runs on a grid this many times finer than the fitting grid.
+_DENSE = 8
+
 #: Lowest grid value kept during the correction, relative to the highest (40 dB down).
 _FLOOR = 1e-4
 
@@ -435,6 +438,22 @@ def equivalent_test(environments, test_duration_s: float, *, q: float = DEFAULT_
     ratio = profile_severity(fitted, t_test, fn, q=qq, b=bb).fds_narrowband / combined
     fitted = fitted.scaled(float(np.min(ratio)) ** (-2.0 / bb))
     fitted = _tighten(fitted, fn, combined, t_test, qq, bb)
+    # The fit touches the combined FDS on the grid; between grid points the combined FDS can bend above the
+    # fitted test's (3 % at a band corner was measured with 60 points).  Check on a grid _DENSE times finer
+    # and raise the whole test just enough that its FDS is never below the combined FDS there either.
+    dense = natural_frequency_grid(lo, hi, _DENSE * (int(grid_points) - 1) + 1)
+    combined_dense = np.zeros(dense.size)
+    ers_dense = np.zeros(dense.size)
+    for env in envs:
+        severity = profile_severity(env.profile, env.duration_s, dense, q=qq, b=bb)
+        combined_dense += severity.fds_narrowband
+        ers_dense = np.maximum(ers_dense, severity.ers_g)
+    lowest = float(np.min(profile_severity(fitted, t_test, dense, q=qq, b=bb).fds_narrowband / combined_dense))
+    if lowest < 1.0:
+        fitted = fitted.scaled(lowest ** (-2.0 / bb))
+    # the result is reported on the check grid, where its smallest FDS ratio is 1
+    fn, combined, ers_env = dense, combined_dense, ers_dense
+    asd = np.exp(np.interp(np.log(dense), np.log(natural_frequency_grid(lo, hi, int(grid_points))), np.log(asd)))
     description = (f"Equivalent test: {t_test:g} s, FDS (b = {bb:g}, Q = {qq:g}) of "
                    + " + ".join(f"{e.profile.name} for {e.duration_s:g} s" for e in envs))
     fitted = AsdProfile(fitted.frequencies_hz, fitted.asd_g2_per_hz, name=name, description=description)
