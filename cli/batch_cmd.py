@@ -3,13 +3,13 @@
 from __future__ import annotations
 
 import contextlib
-import signal
 import sys
 
 import click
 
 from vibsynth.cli import options
 from vibsynth.cli.common import (
+    terminate_as_interrupt,
     caution,
     is_interactive_stderr,
     is_quiet,
@@ -20,22 +20,6 @@ from vibsynth.cli.common import (
 )
 
 
-@contextlib.contextmanager
-def _terminate_as_interrupt():
-    """Turn SIGTERM into KeyboardInterrupt, so the local cluster and its workers are shut down."""
-
-    def _raise(signum, frame):  # noqa: ARG001
-        raise KeyboardInterrupt
-
-    try:
-        previous = signal.signal(signal.SIGTERM, _raise)
-    except (ValueError, OSError):  # not the main thread
-        yield
-        return
-    try:
-        yield
-    finally:
-        signal.signal(signal.SIGTERM, previous)
 
 
 def _row_line(row: dict, finished: int, total: int) -> str:
@@ -94,7 +78,7 @@ def batch(plan_file, out_dir, scheduler, workers, as_json, command_quiet):
     total = len(prepared.tasks)
     note(f"{plan.task_count} drives in {plan_file}: {len(prepared.done)} done earlier, {total} to run")
     show_bar = is_interactive_stderr() and not quiet and not as_json and total > 0
-    with _terminate_as_interrupt(), batches.dask_client(scheduler, workers) as client:
+    with terminate_as_interrupt(), batches.dask_client(scheduler, workers) as client:
         note(f"Dask client on {client.scheduler.address}")
         bar = click.progressbar(length=total, label="drives", file=sys.stderr) if show_bar else None
         with bar if bar is not None else contextlib.nullcontext():

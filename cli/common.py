@@ -6,7 +6,9 @@ functions that need them.
 
 from __future__ import annotations
 
+import contextlib
 import math
+import signal
 import sys
 import time
 
@@ -361,3 +363,22 @@ def json_safe(value):
     if isinstance(value, (list, tuple)):
         return [json_safe(v) for v in value]
     return value
+
+
+@contextlib.contextmanager
+def terminate_as_interrupt():
+    """Turn SIGTERM into KeyboardInterrupt (while writing: temporary files removed; in a batch: workers shut down)."""
+
+    def _raise(signum, frame):  # noqa: ARG001
+        raise KeyboardInterrupt
+
+    try:
+        previous = signal.signal(signal.SIGTERM, _raise)
+    except (ValueError, OSError):  # not the main thread
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+

@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 import contextlib
-import signal
 
 import click
 
 from vibsynth.cli import options
 from vibsynth.cli.common import (
+    terminate_as_interrupt,
     PROGRESS_MIN_SAMPLES,
     Progress,
     caution,
@@ -32,22 +32,6 @@ from vibsynth.cli.common import DRIVE_CAUTION, amplitude_options
 #: without); imported from :mod:`vibsynth.cli.common` and looked up here, so it can be changed per module.
 
 
-@contextlib.contextmanager
-def _terminate_as_interrupt():
-    """Turn SIGTERM into KeyboardInterrupt while writing, so temporary files are removed."""
-
-    def _raise(signum, frame):  # noqa: ARG001
-        raise KeyboardInterrupt
-
-    try:
-        previous = signal.signal(signal.SIGTERM, _raise)
-    except (ValueError, OSError):  # not the main thread
-        yield
-        return
-    try:
-        yield
-    finally:
-        signal.signal(signal.SIGTERM, previous)
 
 
 #: Non-Gaussian options, shared with `vibsynth run` (declared once in :mod:`vibsynth.cli.options`).
@@ -210,7 +194,7 @@ def progress_for(prepared, quiet: bool, as_json: bool = False):
         style = "json" if as_json else ("bar" if is_interactive_stderr() else "lines")
     note(f"writing {prepared.request.output}: {total} samples, {prepared.plan.mode}, {prepared.passes} pass(es)")
     what = f"writing {prepared.request.output}" + (f" ({prepared.passes} passes)" if prepared.passes > 1 else "")
-    with _terminate_as_interrupt(), Progress(enabled, prepared.passes * total, "generating", style, what) as progress:
+    with terminate_as_interrupt(), Progress(enabled, prepared.passes * total, "generating", style, what) as progress:
         yield progress
 
 
@@ -334,15 +318,13 @@ def announce(prepared, as_json: bool = False) -> None:
                f"{passes} pass{'es' if passes > 1 else ''} over the record", err=True)
 
 
-def drive_summary(prepared, written: dict) -> dict:
-    """What was written, as plain data for --json (keys with units; the caution and the warnings included)."""
+def _written_head(prepared, written: dict) -> dict:
+    """The keys every drive summary starts with: file, format, samples, rate, seed, plan, full scale, peak."""
     from vibsynth.io import drivefile
 
-    plan, target, request = prepared.plan, prepared.profile, prepared.request
+    plan, request = prepared.plan, prepared.request
     scaled = prepared.file_format in ("wav", "flac")
-    if plan.channels:
-        return channel_drive_summary(prepared, written)
-    summary = {
+    return {
         "file": str(request.output),
         "sidecar": str(drivefile.sidecar_path(request.output)),
         "format": prepared.file_format,
@@ -359,6 +341,16 @@ def drive_summary(prepared, written: dict) -> dict:
         "ramp_s": request.ramp_s if plan.ramp_in_samples else 0.0,
         "full_scale_g": written.get("scale") if scaled else None,
         "peak_g": written.get("peak_g"),
+    }
+
+
+def drive_summary(prepared, written: dict) -> dict:
+    """What was written, as plain data for --json (keys with units; the caution and the warnings included)."""
+    plan, target = prepared.plan, prepared.profile
+    if plan.channels:
+        return channel_drive_summary(prepared, written)
+    summary = {
+        **_written_head(prepared, written),
         "target": {
             "name": target.name,
             "grms_g": target.grms,
@@ -381,27 +373,9 @@ def drive_summary(prepared, written: dict) -> dict:
 
 def channel_drive_summary(prepared, written: dict) -> dict:
     """--json of a multi-channel drive: as a single-channel one, with ``channels`` (per-channel targets and peaks)."""
-    from vibsynth.io import drivefile
-
-    plan, target, request = prepared.plan, prepared.profile, prepared.request
-    scaled = prepared.file_format in ("wav", "flac")
+    target = prepared.profile
     return {
-        "file": str(request.output),
-        "sidecar": str(drivefile.sidecar_path(request.output)),
-        "format": prepared.file_format,
-        "subtype": prepared.subtype,
-        "samples": plan.total_samples,
-        "rate_hz": plan.rate_hz,
-        "duration_s": plan.duration_s,
-        "seed": written.get("seed", prepared.seed),
-        "mode": plan.mode,
-        "frame_length_samples": plan.frame_length,
-        "resolution_hz": plan.resolution_hz,
-        "amplitude": plan.amplitude,
-        "loop": bool(request.loop),
-        "ramp_s": request.ramp_s if plan.ramp_in_samples else 0.0,
-        "full_scale_g": written.get("scale") if scaled else None,
-        "peak_g": written.get("peak_g"),
+        **_written_head(prepared, written),
         "channels": [
             {"name": name, "column": entry.get("column"), "peak_g": entry.get("peak_g"), "grms_g": channel.grms,
              "frequency_min_hz": channel.frequency_min_hz, "frequency_max_hz": channel.frequency_max_hz,
