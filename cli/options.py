@@ -2,7 +2,8 @@
 
 ``generate`` and ``run`` share the drive options (duration, rate, seed,
 amplitude, ramp, rig limits, rescaling, non-Gaussian targets); ``verify`` and
-``run`` share the verification options; every reporting command shares
+``run`` share the verification options and ``--severity``; ``fit`` and ``run``
+share ``--shaker`` and ``--payload-kg``; every reporting command shares
 ``--json``, ``--inch`` and ``--quiet``.  A command that needs a variant (``run``
 defaults the duration and the rate where ``generate`` requires them) derives it
 with :meth:`SharedOption.but`, so the name, type and help stay in one place.
@@ -151,3 +152,16 @@ VERIFY_OPTIONS = (tolerance, grms_tolerance, min_fraction, welch_resolution, dof
 # ------------------------------------------------------------------ peaks
 records = SharedOption("--records", type=click.IntRange(min=0), default=DEFAULT_PEAK_RECORDS, show_default=True,
                        metavar="N", help="Monte-Carlo records per row (0: theory only).")
+
+# ------------------------------------------------------------------ durability pages (run, verify --report, fit)
+severity = SharedOption(
+    "--severity", is_flag=True,
+    help="Add the fatigue damage spectrum (FDS) and extreme response spectrum (ERS) of the drive against the "
+         "profile's, over the drive's own duration: fds.png, ers.png, two report.pdf pages and a severity block "
+         "in the JSON (as `vibsynth severity --drive`).")
+shaker = SharedOption(
+    "--shaker", "shaker_path", type=click.Path(dir_okay=False), default=None, metavar="RIG.toml",
+    help="The rig's ratings: rated_force_rms_n, stroke_pk_pk_mm, velocity_peak_m_s, acceleration_peak_g, "
+         "moving_mass_kg (armature plus fixture). Exit 1 when the test does not fit.")
+payload_kg = SharedOption("--payload-kg", type=types.FiniteFloatRange(min=0), default=0.0, show_default=True,
+                          metavar="M", help="Mass of the test item, kg (rigid payload, for --shaker).")

@@ -53,13 +53,17 @@ REPORT_FILES = ("profile.toml", "report.json", "report.pdf", "asd.png", "amplitu
               help="Replace a previous run in the folder: its drive, sidecar, report and figures are removed first. "
                    "Without it a folder holding any file is refused; files a run does not write are never removed.")
 @options.apply(*options.VERIFY_OPTIONS)
+@options.severity
+@options.shaker
+@options.payload_kg
 @options.paper
 @options.inch
 @options.json_output
 @options.quiet
 def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, stroke_limit, velocity_limit, grms,
         level_db, kurtosis, skewness, clip, overwrite, tolerance, grms_tolerance, min_fraction, resolution, dof, paper,
-        inch, as_json, command_quiet, kurtosis_model=None, burst_s=None):
+        inch, as_json, command_quiet, kurtosis_model=None, burst_s=None, severity=False, shaker_path=None,
+        payload_kg=0.0):
     """The main job: generate a drive for PROFILE, verify it, write everything into one folder.
 
     PROFILE defaults to the bundled preset `parcel-conveyor` (invented demo
@@ -70,6 +74,13 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
     --overwrite be given). --json prints the report (with the folder, the files, the
     warnings and the caution) instead of the text summary. Exit 0 when the
     drive passes verification, 1 when it does not, 2 for bad input.
+
+    --severity adds the drive's fatigue damage and extreme response spectra
+    against the profile's (fds.png, ers.png, two more report.pdf pages, a
+    severity block in report.json). --shaker RIG.toml checks the test (with the
+    drive's actual peaks) against the shaker's ratings, with --payload-kg the
+    test item's mass: a shaker_fit block in report.json, the table in the
+    summary, and exit 1 when it does not fit (after everything is written).
 
     A drive file is open-loop: play it only through a closed-loop controller
     with alarm and abort limits, within the shaker's stroke, velocity and force
@@ -118,8 +129,14 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
         dof=dof,
         overwrite=overwrite,
         paper=paper.lower(),
+        severity=severity,
+        shaker_path=shaker_path,
+        payload_kg=payload_kg,
     )
     if getattr(target, "channels", None) is not None:  # a multi-channel profile
+        if severity or shaker_path is not None:
+            raise click.UsageError("--severity and --shaker take a single-channel profile; run `vibsynth severity` "
+                                   "or `vibsynth fit` on each channel's profile")
         run_channels_cli(target, request, folder, quiet, as_json, inch)
         return
     with warnings.catch_warnings():
@@ -143,12 +160,32 @@ def run(profile, out_dir, duration, rate, file_format, seed, amplitude, ramp_s, 
         click.echo(format_written(pending.prepared, result.written, inch))
         click.echo("")
         click.echo(format_verification(result.verification, result.drive_path.name))
+        if result.severity is not None:
+            click.echo(format_severity(result.severity))
+        if result.shaker_fit is not None:
+            from vibsynth.cli.fit_cmd import format_fit
+
+            click.echo("")
+            click.echo(format_fit(result.shaker_fit, target))
         click.echo("")
         click.echo(f"files in {folder}/:")
         for name in result.files:
             click.echo(f"  {name}")
+    if result.shaker_fit is not None:
+        from vibsynth.cli.fit_cmd import echo_fit_caution
+
+        echo_fit_caution()
     caution()
-    click.get_current_context().exit(0 if result.passed else 1)
+    click.get_current_context().exit(0 if result.passed and result.fits else 1)
+
+
+def format_severity(block: dict) -> str:
+    """One report line: the drive's FDS over the narrow-band form's, smallest and largest over the grid."""
+    ratios = [r for r in block.get("fds_drive_to_narrowband", []) if r is not None]
+    text = (f"drive/narrow band {min(ratios):.3g} to {max(ratios):.3g} over {len(ratios)} natural frequencies"
+            if ratios else "no natural frequency below 0.3 x the rate")
+    return (f"  severity  FDS/ERS over {block['duration_s']:.4g} s, Q {block['q']:g}, b {block['b']:g}: {text} "
+            f"({', '.join(block.get('figures', []))})")
 
 
 def run_channels_cli(target, request, folder: Path, quiet: bool, as_json: bool, inch: bool) -> None:

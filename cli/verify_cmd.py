@@ -158,10 +158,13 @@ _dof_option = options.dof
                               "statistics, ...).")
 @click.option("-o", "--report", "report_dir", type=click.Path(file_okay=False), default=None, metavar="DIR",
               help="Write figures (PNG), a multi-page PDF and verify.json into the folder DIR.")
+@options.severity.but(help="With --report: add the fatigue damage spectrum (FDS) and extreme response spectrum (ERS) "
+                           "of the drive against the target's, over the drive's own duration (fds.png, ers.png, two "
+                           "more report.pdf pages, a severity block in verify.json and --json).")
 @options.paper
 @options.quiet.but(help="No text report (only the exit status; warnings and errors still show; --json still prints).")
 def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction, resolution, dof, rate, scale, as_json,
-           report_dir, paper, command_quiet):
+           report_dir, severity, paper, command_quiet):
     """Judge a drive file against its target ASD: exit 0 pass, 1 fail, 2 bad input.
 
     Re-estimates the ASD by Welch's method (Hann, 50 % overlap) from the file
@@ -182,8 +185,12 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     from vibsynth import jobs
     from vibsynth.io.drivefile import open_drive
 
+    if severity and not report_dir:
+        raise click.UsageError("--severity adds pages to a report; give --report DIR too")
     drive = open_drive(file, rate_hz=rate, scale=scale)
     if drive.channels:
+        if severity:
+            raise click.UsageError("--severity takes a single-channel drive; run `vibsynth severity --drive` per channel")
         verify_channels(drive, file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction, resolution, dof,
                         as_json, report_dir, command_quiet)
         return
@@ -205,8 +212,12 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
         level = None
         if profile_spec:  # a target given here: its level is the one asked here
             level = f"{level_db:+g} dB" if level_db is not None else "0 dB (as written)"
+        pages = ()
+        if severity:
+            data["severity"] = jobs.drive_severity_block(target, drive, file, report_dir, rate_hz=rate, scale=scale)
+            pages = jobs.severity_pages(data["severity"], report_dir)
         data["report"] = jobs.write_verify_report(result, drive, report_dir, str(file), data, paper=paper.lower(),
-                                                  level=level)
+                                                  level=level, extra_pages=pages)
     if as_json:
         click.echo(json.dumps(data, indent=2, allow_nan=False))
     elif not is_quiet(command_quiet):
@@ -216,7 +227,9 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
         if response is not None:
             click.echo(format_response_kurtosis(response))
         if report_dir:
-            click.echo(f"  report       {report_dir}/ (report.pdf, asd.png, amplitude.png, excerpt.png, rms.png, verify.json)")
+            extra = "".join(f", {name}" for name in data.get("severity", {}).get("figures", []))
+            click.echo(f"  report       {report_dir}/ (report.pdf, asd.png, amplitude.png, excerpt.png, rms.png{extra}, "
+                       "verify.json)")
     click.get_current_context().exit(0 if result.passed else 1)
 
 

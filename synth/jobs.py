@@ -16,7 +16,10 @@ Run job (``vibsynth run``): :func:`prepare_run` + :func:`complete_run` (or
 :func:`run_job`) generate, verify and write drive, sidecar, profile.toml,
 figures, report.pdf and report.json into one folder, returning a
 :class:`RunResult` that carries every warning (each also issued as a
-:class:`~vibsynth.errors.VibsynthWarning`).
+:class:`~vibsynth.errors.VibsynthWarning`).  Asked for, a run adds the drive's
+fatigue damage and extreme response spectra (:func:`drive_severity_block`:
+``fds.png``, ``ers.png`` and their report pages) and the shaker check
+(:func:`vibsynth.durability.report.fit_report`).
 
 References
 ----------
@@ -657,11 +660,13 @@ def verification_data(result, drive, file_label: str) -> dict:
 
 
 def write_verify_report(result, drive, folder, file_label: str, data: dict | None = None, paper: str = "a4",
-                        level: str | None = None) -> dict:
+                        level: str | None = None, extra_pages: tuple = ()) -> dict:
     """Write the figures, report.pdf and verify.json into ``folder`` (created), each atomically.
 
     ``paper`` is the PDF's paper size (``a4`` or ``letter``); ``level`` the
-    level applied to the target in words (default: from the sidecar).
+    level applied to the target in words (default: from the sidecar);
+    ``extra_pages`` more report pages, (PNG path, notes) pairs such as
+    :func:`severity_pages` gives.
 
     Returns
     -------
@@ -683,10 +688,96 @@ def write_verify_report(result, drive, folder, file_label: str, data: dict | Non
     folder.mkdir(parents=True, exist_ok=True)
     data = verification_data(result, drive, file_label) if data is None else data
     facts = report_facts(drive, level=level, label=Path(file_label).name)
-    paths = write_report_figures(result, folder, title=Path(file_label).name, facts=facts, paper=paper)
+    paths = write_report_figures(result, folder, title=Path(file_label).name, facts=facts, paper=paper,
+                                 extra_pages=extra_pages)
     write_json_atomic(folder / "verify.json", data)
     paths["json"] = str(folder / "verify.json")
     return paths
+
+
+#: Figures the drive's severity (FDS and ERS) adds to a report folder.
+SEVERITY_FILES = ("fds.png", "ers.png")
+
+
+def drive_severity_block(profile: "AsdProfile", drive, drive_path, folder, rate_hz: float | None = None,
+                         scale: float | None = None) -> dict:
+    """FDS and ERS of a drive file against its profile over the drive's own duration; writes fds.png and ers.png.
+
+    The duration is the drive's steady part (ramps left out), so the drive's
+    damage is compared unscaled with the profile's over the same time.
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        Target ASD, g^2/Hz.
+    drive : vibsynth.io.drivefile.DriveFile
+        The drive, opened (for its rate and steady part).
+    drive_path : str or os.PathLike
+        The drive file.
+    folder : str or os.PathLike
+        Report folder (created if missing).
+    rate_hz, scale : float, optional
+        For drive files that cannot tell their rate or full scale.
+
+    Returns
+    -------
+    dict
+        :func:`vibsynth.durability.report.severity_report`'s keys (``fn_hz``,
+        ``fds_narrowband``, ``fds_dirlik``, ``ers_g``, ``fds_drive``, ``ers_drive_g``,
+        ...; NaN as None), paths as names relative to ``folder``, and ``duration_s``.
+
+    Examples
+    --------
+    >>> drive_severity_block.__name__
+    'drive_severity_block'
+
+    References
+    ----------
+    Lalanne, "Mechanical Vibration and Shock Analysis", vol. 5; Dirlik (1985); ASTM E1049-85 (2017).
+    """
+    from vibsynth.durability.report import severity_report
+
+    start, stop = drive.steady_range
+    duration_s = (stop - start) / drive.rate_hz
+    data = severity_report(profile, duration_s, drive_path=drive_path, report_dir=folder, rate_hz=rate_hz,
+                           scale=scale)
+    data["duration_s"] = duration_s
+    data["drive"] = Path(drive_path).name
+    data["figures"] = [Path(path).name for path in data.get("figures", [])]
+    return _json_safe(data, empty_text=None)
+
+
+def severity_pages(block: dict, folder) -> tuple:
+    """The report pages of a severity block: (PNG path, notes) for the FDS and the ERS figure.
+
+    Examples
+    --------
+    >>> severity_pages({"figures": []}, ".")
+    ()
+
+    References
+    ----------
+    Lalanne, vol. 5; Dirlik (1985); ASTM E1049-85 (2017); Davenport (1964).
+    """
+    ratios = [r for r in block.get("fds_drive_to_narrowband", []) if r is not None]
+    spread = (f"Drive over narrow band: {min(ratios):.3g} to {max(ratios):.3g} over the grid. "
+              if ratios else "")
+    notes = {
+        "fds.png": (
+            f"Fatigue damage spectrum over {block.get('duration_s', 0):.4g} s (the drive's steady part), Q = "
+            f"{block.get('q', 10):g}, b = {block.get('b', 8):g}, damage per unit of the material constants "
+            "(K = C = 1), counted on cycle amplitudes. The specification's narrow-band closed form (Lalanne, vol. 5) "
+            "and the broadband estimate of Dirlik (1985) against the drive's own damage: response of the samples "
+            "by the ramp-invariant filter (Smallwood 1981), rainflow counting (ASTM E1049-85), Miner's rule. "
+            + spread + "The narrow-band form sits above a broadband response's true damage; the lower panel shows "
+            "the ratios.",),
+        "ers.png": (
+            "Extreme response spectrum: pseudo-acceleration (2 pi fn)^2 z_max / g0 of the oscillator. The "
+            "specification's expected largest response (Davenport) against the drive's actual largest response "
+            "in its steady part.",),
+    }
+    folder = Path(folder)
+    return tuple((folder / name, notes.get(name, ())) for name in block.get("figures", []))
 
 
 def level_text(options: dict | None) -> str:
@@ -834,6 +925,14 @@ class RunRequest:
         without it a folder holding any file refuses the run.
     paper : {"a4", "letter"}
         Paper size of report.pdf.
+    severity : bool
+        Add the drive's FDS and ERS against the profile (``fds.png``,
+        ``ers.png``, two report pages, a ``severity`` block in report.json).
+    shaker_path : str or None
+        RIG.toml: check the test against the shaker's ratings (a
+        ``shaker_fit`` block in report.json; see :func:`vibsynth.durability.report.fit_report`).
+    payload_kg : float
+        Test item mass for the shaker check, kg.
     """
 
     folder: str
@@ -846,13 +945,17 @@ class RunRequest:
     dof: float | None = None
     overwrite: bool = False
     paper: str = "a4"
+    severity: bool = False
+    shaker_path: str | None = None
+    payload_kg: float = 0.0
 
 
 #: Sample formats a run's drive may have (``drive.FORMAT``).
 RUN_DRIVE_FORMATS = ("flac", "wav", "csv", "npy")
 
 #: Files a run writes besides the drive and its sidecar.
-RUN_REPORT_FILES = ("profile.toml", "report.json", "report.pdf") + tuple(f"{name}.png" for name in FIGURE_NAMES)
+RUN_REPORT_FILES = (("profile.toml", "report.json", "report.pdf") + tuple(f"{name}.png" for name in FIGURE_NAMES)
+                    + SEVERITY_FILES)
 
 _PARTIAL_NAME = re.compile(r"^\.(?P<name>.+?)\.\d+(?:\.\d+)?\.partial$")
 
@@ -967,6 +1070,10 @@ class RunResult:
         Names of the files in the folder.
     warnings : tuple of str
         Every warning of the run, in order (also issued as :class:`VibsynthWarning`).
+    severity : dict or None
+        The ``severity`` block of report.json (when asked).
+    shaker_fit : vibsynth.durability.shaker.FitResult or None
+        The shaker check (when asked).
     """
 
     folder: Path
@@ -977,11 +1084,18 @@ class RunResult:
     report: dict
     files: tuple
     warnings: tuple
+    severity: dict | None = None
+    shaker_fit: object = None
 
     @property
     def passed(self) -> bool:
         """True when the drive passed verification."""
         return bool(self.verification.passed)
+
+    @property
+    def fits(self) -> bool:
+        """False when a shaker check was asked for and the test does not fit the shaker."""
+        return self.shaker_fit is None or bool(self.shaker_fit.fits)
 
 
 def _now_utc() -> str:
@@ -999,11 +1113,12 @@ def _sha256(path: Path) -> str:
 
 def run_report(result_files: dict, folder: Path, drive_path: Path, profile: "AsdProfile", profile_source: str | None,
                written: dict, verification: "Verification", run_warnings, paper: str = "a4",
-               created_utc: str | None = None) -> dict:
+               created_utc: str | None = None, severity: dict | None = None, shaker_fit: dict | None = None) -> dict:
     """The report.json object of a run (schema ``report.schema.json``, version :data:`REPORT_SCHEMA_VERSION`).
 
     Paths are relative to the folder; the drive and its sidecar carry SHA-256
-    digests.  The ``verification`` block is the ``verify --json`` contract.
+    digests.  The ``verification`` block is the ``verify --json`` contract;
+    ``severity`` and ``shaker_fit`` blocks are added when given.
 
     Examples
     --------
@@ -1017,7 +1132,7 @@ def run_report(result_files: dict, folder: Path, drive_path: Path, profile: "Asd
     side = drivefile.sidecar_path(drive_path)
     plan = written.get("plan") or {}
     options = written.get("options") or {}
-    return {
+    report = {
         "schema_version": REPORT_SCHEMA_VERSION,
         "tool": {"name": "vibsynth", "version": __version__},
         "created_utc": created_utc or _now_utc(),
@@ -1042,6 +1157,11 @@ def run_report(result_files: dict, folder: Path, drive_path: Path, profile: "Asd
         "warnings": list(run_warnings),
         "caution": DRIVE_CAUTION,
     }
+    if severity is not None:
+        report["severity"] = _json_safe(severity, empty_text=None)
+    if shaker_fit is not None:
+        report["shaker_fit"] = _json_safe(shaker_fit, empty_text=None)
+    return report
 
 
 @dataclass(frozen=True)
@@ -1104,6 +1224,10 @@ def prepare_run(profile: "AsdProfile", request: RunRequest) -> PreparedRun:
     """
     folder = Path(request.folder)
     previous = check_run_folder(folder, request.overwrite)
+    if request.shaker_path is not None:  # a bad rig file is refused before anything is written
+        from vibsynth.durability.shaker import read_shaker
+
+        read_shaker(request.shaker_path)
     drive_path = folder / f"drive.{drivefile.drive_format('drive.' + request.file_format)}"
     drive_request = dataclasses.replace(request.drive, output=str(drive_path))
     folder_created = not folder.exists()
@@ -1139,7 +1263,9 @@ def complete_run(run: PreparedRun, progress: Callable[[int], None] | None = None
 
     Writes ``drive.FORMAT`` and its sidecar, the target (``profile.toml``),
     the figures (``asd.png``, ``amplitude.png``, ``excerpt.png``, ``rms.png``),
-    ``report.pdf`` and ``report.json``, each atomically.
+    ``report.pdf`` and ``report.json``, each atomically; with ``severity`` also
+    ``fds.png`` and ``ers.png`` (two more report pages), with ``shaker_path`` the
+    shaker check (judged on the drive's actual peaks) in report.json.
 
     Parameters
     ----------
@@ -1181,22 +1307,34 @@ def complete_run(run: PreparedRun, progress: Callable[[int], None] | None = None
         write_profile(profile, folder / "profile.toml")
         created = _now_utc()
         facts = report_facts(drive, created_utc=created)
+        severity = drive_severity_block(profile, drive, drive_path, folder) if request.severity else None
         figures = write_report_figures(verification, folder, title=drive_path.name, facts=facts,
-                                       paper=request.paper)
+                                       paper=request.paper,
+                                       extra_pages=severity_pages(severity, folder) if severity else ())
+        fit = None
+        if request.shaker_path is not None:
+            from vibsynth.durability.report import fit_report
+
+            fit = fit_report(profile, request.shaker_path, payload_kg=request.payload_kg, drive_path=drive_path)
     _merge_warnings(collected, caught)
     if verification.segment_message and verification.segment_message not in collected:
         collected.append(verification.segment_message)
     if not verification.passed:
         collected.append("the drive did NOT pass verification; see report.pdf before using it")
+    if fit is not None and not fit.fits:
+        collected.append(f"the test does NOT fit the shaker {fit.shaker.name} (payload {fit.payload_kg:g} kg): "
+                         "at least one demand exceeds its rating; see shaker_fit in report.json")
     report = run_report(figures, folder, drive_path, profile, run.prepared.request.profile_source or None, written,
-                        verification, collected, paper=request.paper, created_utc=created)
+                        verification, collected, paper=request.paper, created_utc=created, severity=severity,
+                        shaker_fit=None if fit is None else fit.to_dict())
     write_json_atomic(folder / "report.json", report)
     for message in collected[len(run.warnings):]:  # those of the planning were issued by prepare_run
         warnings.warn(message, VibsynthWarning, stacklevel=2)
     files = (drive_path.name, drivefile.sidecar_path(drive_path).name, "profile.toml", "report.json", "report.pdf",
-             *(f"{name}.png" for name in FIGURE_NAMES))
+             *(f"{name}.png" for name in FIGURE_NAMES), *(severity["figures"] if severity else ()))
     return RunResult(folder=folder, drive_path=drive_path, prepared=run.prepared, written=written,
-                     verification=verification, report=report, files=files, warnings=tuple(collected))
+                     verification=verification, report=report, files=files, warnings=tuple(collected),
+                     severity=severity, shaker_fit=fit)
 
 
 def run_job(profile: "AsdProfile", request: RunRequest, progress: Callable[[int], None] | None = None) -> RunResult:

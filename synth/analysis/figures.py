@@ -1034,8 +1034,65 @@ def pdf_metadata(result: Verification, title: str = "", facts: ReportFacts | Non
     }
 
 
+def image_page(image_path: str | os.PathLike, result: Verification, title: str = "", facts: ReportFacts | None = None,
+               paper: str = "a4", page_number: int = 6, pages: int = 7, notes: tuple = ()) -> Figure:
+    """A page of report.pdf holding a figure made elsewhere (a PNG file), its notes below, the page number.
+
+    Lets other parts of the package (the durability pages: FDS and ERS) join the
+    report without this module importing them.
+
+    Parameters
+    ----------
+    image_path : str or os.PathLike
+        PNG file to place, scaled to the page width (aspect kept).
+    result : Verification
+        For the footer's title.
+    title : str
+    facts : ReportFacts, optional
+    paper : {"a4", "letter"}
+    page_number, pages : int
+    notes : tuple of str
+        Paragraphs below the figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> image_page.__name__
+    'image_page'
+
+    References
+    ----------
+    PNG: ISO/IEC 15948:2004.
+    """
+    from matplotlib.image import imread
+
+    image = imread(str(image_path))
+    page = _Page(paper)
+    rows, columns = image.shape[:2]
+    width = page.inner
+    height = min(width * rows / columns, page.y - page.margin - 2.0)
+    width = height * columns / rows
+    left = page.margin + (page.inner - width) / 2
+    ax = page.figure.add_axes((left / page.width, (page.y - height) / page.height, width / page.width,
+                               height / page.height))
+    ax.imshow(image, interpolation="lanczos")
+    ax.set_axis_off()
+    page.y -= height + 0.25
+    page.rule(RULE, 0.6)
+    page.y -= 0.1
+    for note in notes:
+        for line in _wrap(note, 118):
+            page.text(0, line, 8, dy=0.16)
+        page.y -= 0.06
+    page.footer(f"{_title(result, facts, title)}  ·  vibsynth {__version__}", page_number, pages)
+    return page.figure
+
+
 def write_report_figures(result: Verification, folder: str | os.PathLike, title: str = "", extra_lines: tuple = (),
-                         facts: ReportFacts | None = None, paper: str = "a4") -> dict:
+                         facts: ReportFacts | None = None, paper: str = "a4", extra_pages: tuple = ()) -> dict:
     """Write the four figures as PNG and the report (page 1 to sign, then one figure a page) as one PDF, atomically.
 
     Each file is written under a temporary name in ``folder`` and renamed when
@@ -1054,6 +1111,9 @@ def write_report_figures(result: Verification, folder: str | os.PathLike, title:
         The drive, its digests, the level applied, the amplitude model.
     paper : {"a4", "letter"}
         Paper size of every PDF page.
+    extra_pages : tuple of (path, tuple of str)
+        More pages after the figure pages: a PNG file made elsewhere (e.g. the
+        FDS and ERS figures) and the notes printed below it (see :func:`image_page`).
 
     Returns
     -------
@@ -1081,7 +1141,8 @@ def write_report_figures(result: Verification, folder: str | os.PathLike, title:
     paper = str(paper).lower()
     if paper not in PAPER_SIZES_PT:
         raise InputError(f"paper size {paper!r} is not known; give a4 or letter", location="paper")
-    pages = 1 + len(FIGURE_NAMES)
+    extra_pages = tuple(extra_pages)
+    pages = 1 + len(FIGURE_NAMES) + len(extra_pages)
     written = {}
     pending = []
     try:
@@ -1095,6 +1156,9 @@ def write_report_figures(result: Verification, folder: str | os.PathLike, title:
             pdf.savefig(summary_figure(result, title, extra_lines, facts, paper, pages), facecolor=PAPER)
             for number, name in enumerate(FIGURE_NAMES, start=2):
                 pdf.savefig(figure_page(name, result, title, facts, paper, number, pages), facecolor=PAPER)
+            for number, (image, notes) in enumerate(extra_pages, start=2 + len(FIGURE_NAMES)):
+                pdf.savefig(image_page(image, result, title, facts, paper, number, pages, tuple(notes)),
+                            facecolor=PAPER)
         written["pdf"] = pending[-1]
         commit_all(written.values())
     finally:

@@ -43,7 +43,8 @@ __all__ = ["ShakerRating", "Demand", "FitResult", "read_shaker", "shaker_fit", "
 #: Said with every fit result.
 FIT_CAUTION = (
     "The force assumes a rigid payload moving with the armature: a payload or fixture with resonances in the band "
-    "can demand much more force. Ratings are the manufacturer's for a given configuration (cooling, suspension, "
+    "can demand much more force, and every figure assumes linear behaviour of payload, fixture and shaker. "
+    "Ratings are the manufacturer's for a given configuration (cooling, suspension, "
     "amplifier); the peak figures of a profile are 3-sigma estimates that a real drive exceeds from time to time. "
     "Check them with the controller's own limits and abort levels before any run, under your lab's procedures."
 )
