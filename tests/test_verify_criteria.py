@@ -343,3 +343,30 @@ def test_new_criteria_settings_are_checked():
     rules = Criteria().rule_text()
     assert {"mean", "stationarity", "crossing_rate", "asd_bands", "asd_edges", "gaussian"} <= rules.keys()
     assert "gaussian" not in Criteria(kurtosis_target=5.0).rule_text()
+
+
+def test_a_short_dropout_fails_and_quantised_slow_records_do_not():
+    # A 50 ms run of zeros in 60 s of bench-flat changes the ASD and RMS by far less than their
+    # tolerances (found by an independent check), but no continuous random record repeats a value 256
+    # times: the held-samples check fails it.  A 16-bit record of a 2-300 Hz profile at 51.2 kHz holds
+    # values for a few tenths of a millisecond at its slow peaks and must pass.
+    import warnings as _warnings
+
+    from vibsynth import generate_samples, read_profile
+    from vibsynth.analysis.verify import verify_record
+
+    profile = read_profile("bench-flat")
+    x = generate_samples(profile, 60.0, 5120.0, seed=7)
+    x[300000:300256] = 0.0
+    result = verify_record(x, 5120.0, profile)
+    held = next(c for c in result.to_dict()["criteria"] if c["name"] == "held_samples")
+    assert not result.passed and not held["pass"] and held["measured_longest_run_samples"] == 256
+    slow = read_profile("harbour-crane-cab")
+    with _warnings.catch_warnings():
+        _warnings.simplefilter("ignore")
+        y = generate_samples(slow, 60.0, 51200.0, seed=2)
+    step = np.max(np.abs(y)) * 1.001 / 2**15
+    y = np.round(y / step) * step  # what a 16-bit file holds
+    result = verify_record(y, 51200.0, slow)
+    held = next(c for c in result.to_dict()["criteria"] if c["name"] == "held_samples")
+    assert held["pass"] and held["measured_longest_run_samples"] > 1

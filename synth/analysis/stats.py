@@ -532,3 +532,75 @@ class WindowRmsAccumulator:
         Bendat & Piersol (2010), section 12.4.
         """
         return tuple(self._rms)
+
+
+class HeldRunAccumulator:
+    """Longest run of identical consecutive samples of a record fed in chunks (a dropout or a held value).
+
+    A sampled random record whose spectrum is continuous never repeats a value exactly, except where
+    quantisation holds it for a few samples at a slow peak; a run of tens of identical samples is a
+    dropout, a frozen acquisition or an edit, which spectral and RMS checks over long windows miss.
+
+    Parameters
+    ----------
+    rate_hz : float
+        Sample rate, Hz.
+
+    Examples
+    --------
+    >>> acc = HeldRunAccumulator(1000.0)
+    >>> acc.update([0.1, 0.0, 0.0]); acc.update([0.0, 0.0, 0.3])
+    >>> acc.longest, acc.start, acc.value
+    (4, 1, 0.0)
+
+    References
+    ----------
+    Run-length counting (no published method needed); the plausibility limit is set by the caller.
+    """
+
+    def __init__(self, rate_hz: float):
+        self._rate_hz = check_rate_hz(rate_hz)
+        self._n = 0
+        self._last = None
+        self._run = 0
+        self._run_start = 0
+        self.longest = 0
+        self.start = 0
+        self.value = math.nan
+
+    @property
+    def longest_s(self) -> float:
+        """Duration of the longest run, s (its length / rate)."""
+        return self.longest / self._rate_hz
+
+    def update(self, chunk) -> None:
+        """Add the next samples (any length).
+
+        Examples
+        --------
+        >>> acc = HeldRunAccumulator(10.0); acc.update([1.0, 1.0]); acc.longest_s
+        0.2
+
+        References
+        ----------
+        None (bookkeeping).
+        """
+        x = as_samples(chunk, self._n)
+        if x.size == 0:
+            return
+        # where a new run starts inside this chunk (a sample differing from the one before it)
+        starts = np.flatnonzero(np.diff(x) != 0) + 1
+        bounds = np.concatenate(([0], starts, [x.size]))
+        lengths = np.diff(bounds)
+        if self._last is not None and x[0] == self._last:
+            lengths[0] += self._run
+            first_start = self._run_start
+        else:
+            first_start = self._n
+        run_starts = self._n + bounds[:-1]
+        run_starts[0] = first_start
+        i = int(np.argmax(lengths))
+        if lengths[i] > self.longest:
+            self.longest, self.start, self.value = int(lengths[i]), int(run_starts[i]), float(x[bounds[i]])
+        self._run, self._run_start, self._last = int(lengths[-1]), int(run_starts[-1]), float(x[-1])
+        self._n += x.size

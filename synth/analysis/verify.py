@@ -61,7 +61,12 @@ from vibsynth.analysis.extremes import (
 )
 from vibsynth.profile.asd import AsdProfile
 from vibsynth.analysis.record_input import check_rate_hz
-from vibsynth.analysis.stats import LevelCrossingAccumulator, MomentAccumulator, WindowRmsAccumulator
+from vibsynth.analysis.stats import (
+    HeldRunAccumulator,
+    LevelCrossingAccumulator,
+    MomentAccumulator,
+    WindowRmsAccumulator,
+)
 from vibsynth.analysis.welch import (
     DEFAULT_TARGET_DOF,
     WelchAccumulator,
@@ -73,6 +78,14 @@ from vibsynth.analysis.welch import (
 
 #: The amplitude histogram spans +/- this many standard deviations ...
 HISTOGRAM_RANGE_SIGMA = 12
+#: A run of identical consecutive samples longer than both of these is a dropout or a held value: at
+#: least this many samples ...
+HELD_RUN_MIN_SAMPLES = 8
+#: ... and longer than this many periods of the profile's lowest frequency.  A 16-bit record holds a
+#: value near a slow local peak of frequency f and amplitude A for sqrt(2 q / A) / (2 pi f) s (the
+#: parabola through the peak stays within one step q = 2^-15 of full scale): 0.0012 / f at full scale,
+#: 0.012 / f at 1 % of it; the limit is 4 times the latter (common practice, no source).
+HELD_RUN_PERIODS_OF_LOWEST = 0.05
 #: ... with this many bins per standard deviation.
 HISTOGRAM_BINS_PER_SIGMA = 8
 
@@ -769,6 +782,7 @@ def verify_record(
     moments = MomentAccumulator(rate_hz, window_s)
     rho = _correlation_sequence(profile, float(rate_hz))
     short_windows = WindowRmsAccumulator(rate_hz, _stationarity_window_samples(rho, float(rate_hz), profile, steady))
+    held = HeldRunAccumulator(rate_hz)
     peak_index, peak_abs = 0, -1.0
     for x, offset in steady_chunks():
         if not np.all(np.isfinite(x)):
@@ -777,6 +791,7 @@ def verify_record(
         welch.update(x)
         moments.update(x)
         short_windows.update(x)
+        held.update(x)
         i = int(np.argmax(np.abs(x)))
         if abs(x[i]) > peak_abs:
             peak_abs, peak_index = abs(float(x[i])), offset + i
@@ -856,7 +871,7 @@ def verify_record(
         statistics["expected_peak_sampled_std_sigma"] = None
 
     checks = _judge(criteria, profile, estimate, comparison, first, second, statistics, rho, rho1,
-                    short_windows, float(rate_hz), skip_start)
+                    short_windows, float(rate_hz), skip_start, held)
     failed, reasons = [], []
     groups = list(dict.fromkeys(check["group"] for check in checks))  # in the order the criteria are listed
     for group in groups:
@@ -1104,7 +1119,7 @@ def floor_percent(fraction: float, digits: int = 1) -> str:
 
 
 def _judge(criteria, profile, estimate, comparison, first, second, statistics, rho, rho1, short_windows,
-           rate_hz, skip_start):
+           rate_hz, skip_start, held=None):
     """Every criterion as a dict: name, group, pass, measured_* and limit_* (unit-suffixed), summary, reason."""
     checks = []
     alpha = criteria.false_alarm_probability
@@ -1212,6 +1227,19 @@ def _judge(criteria, profile, estimate, comparison, first, second, statistics, r
     add("mean", "mean", ok, f"|mean| {abs(first.mean):.3g} g, {mean_percent:.2f} % of the RMS",
         f"mean: {first.mean:+.4g} g is {mean_percent:.1f} % of the RMS (at most {criteria.mean_limit_percent:g} %)",
         measured_mean_g=first.mean, measured_percent_of_rms=mean_percent, limit_percent=criteria.mean_limit_percent)
+
+    # --- dropouts and held values: a run of identical samples no continuous random record makes
+    if criteria.stationarity and held is not None:
+        limit_s = max(HELD_RUN_MIN_SAMPLES / rate_hz, HELD_RUN_PERIODS_OF_LOWEST / profile.frequency_min_hz)
+        at_s = (held.start + skip_start) / rate_hz
+        ok = held.longest_s <= limit_s
+        add("held_samples", "stationarity", ok,
+            f"longest run of identical samples {held.longest} ({1000 * held.longest_s:.3g} ms, at {at_s:.4g} s), "
+            f"at most {1000 * limit_s:.3g} ms",
+            f"dropout or held value: {held.longest} identical samples ({held.value:.4g} g) for "
+            f"{1000 * held.longest_s:.3g} ms at {at_s:.4g} s (at most {1000 * limit_s:.3g} ms)",
+            measured_longest_run_samples=held.longest, measured_longest_run_s=held.longest_s,
+            measured_time_s=at_s, limit_s=limit_s)
 
     # --- stationarity: mean square of short windows against chi-square limits (Bendat & Piersol)
     rms_windows = np.asarray(short_windows.result())
