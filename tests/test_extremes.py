@@ -182,3 +182,17 @@ def test_input_validation():
     with pytest.raises(InputError):
         peak_theory_from_sampled_spectrum([0.0, 1.0], [0.0, 0.0], 10.0)
     assert irregularity_factor(1.0, 1.0, 1.0 - 1e-12) == 1.0  # rounding slack, clamped
+
+
+def test_davenport_warns_when_few_crossings():
+    # The formula is asymptotic in nu0 T (Davenport 1964); a caller asking for it over a couple of
+    # crossings is told, and gets the value still (an independent check found it silent at 1.6).
+    import warnings
+
+    from vibsynth.errors import VibsynthWarning
+
+    with pytest.warns(VibsynthWarning, match="expected up-crossings"):
+        davenport_expected_largest_peak_sigma(32.0, 0.05)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", VibsynthWarning)
+        davenport_expected_largest_peak_sigma(100.0, 60.0)  # 6000 crossings: silent

@@ -26,6 +26,7 @@ peak_theory_from_sampled_spectrum(frequencies_hz, asd, duration_s)
 from __future__ import annotations
 
 import math
+import warnings
 import numbers
 from dataclasses import dataclass
 
@@ -34,7 +35,7 @@ from scipy.integrate import trapezoid
 from scipy import special
 from scipy.special import erfc, ndtr
 
-from vibsynth.errors import InputError
+from vibsynth.errors import InputError, VibsynthWarning
 
 __all__ = [
     "LargestPeak",
@@ -158,6 +159,11 @@ def irregularity_factor(m0_g2: float, m2_g2_hz2: float, m4_g2_hz4: float) -> flo
     return min(alpha, 1.0)
 
 
+#: Below this many expected up-crossings in the duration the largest-peak formula is only rough (its
+#: derivation assumes many independent crossings; common practice, no source).
+DAVENPORT_MIN_CYCLES = 20.0
+
+
 def _ln_nu0_t(nu0_hz: float, duration_s: float) -> float:
     nu0 = _positive(nu0_hz, "nu0_hz", "Hz")
     t = _positive(duration_s, "duration_s", "s")
@@ -168,6 +174,11 @@ def _ln_nu0_t(nu0_hz: float, duration_s: float) -> float:
             f"many more than 1 (use a longer duration)",
             location="duration_s",
         )
+    if cycles < DAVENPORT_MIN_CYCLES:
+        warnings.warn(
+            f"only {cycles:.3g} expected up-crossings in the duration: Davenport's largest-peak formula is "
+            f"asymptotic (many crossings) and rough below about {DAVENPORT_MIN_CYCLES:g}; give a longer duration",
+            VibsynthWarning, stacklevel=3)
     return math.log(cycles)
 
 
