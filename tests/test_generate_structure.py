@@ -76,3 +76,29 @@ def test_transformed_periodic_records_are_budgeted_for_their_high_pass():
     assert plan_synthesis(FLAT, 20.0, RATE_HZ, memory_budget_bytes=budget).mode == "periodic"
     transformed = plan_synthesis(FLAT, 20.0, RATE_HZ, memory_budget_bytes=budget, transform=plan_transform(kurtosis=5.0))
     assert transformed.mode == "overlap-add"
+
+
+@pytest.mark.parametrize("attenuation_db", [10.0, 21.0, 30.0, 50.0, 60.0, 65.0, 120.0])
+def test_kaiser_beta_is_scipys_to_the_bit(attenuation_db):
+    # reference: scipy.signal.kaiser_beta (Kaiser 1974 formula); equality, not closeness, keeps the
+    # high-pass taps and so the samples identical
+    import scipy.signal
+
+    from vibsynth.generate.highpass import kaiser_beta
+
+    assert kaiser_beta(attenuation_db) == scipy.signal.kaiser_beta(attenuation_db)
+
+
+def test_generating_a_streamed_drive_does_not_import_scipy_signal(tmp_path):
+    # start-up cost of the whole process: a Gaussian drive needs none of scipy.signal, scipy.stats, scipy.optimize
+    profile = tmp_path / "p.csv"
+    profile.write_text("frequency_hz,asd_g2_per_hz\n20,0.01\n2000,0.01\n")
+    out = tmp_path / "d.npy"
+    loaded = _fresh(
+        "import sys; from vibsynth.cli.main import main; "
+        f"status = main(['generate', {str(profile)!r}, '-o', {str(out)!r}, '--duration', '60', '--rate', '5120', "
+        "'--seed', '1', '--quiet', '--memory-budget', '1']); "
+        "print(sorted(m for m in ('scipy.signal', 'scipy.stats', 'scipy.optimize') if m in sys.modules), status)"
+    )
+    assert loaded.splitlines()[-1] == "[] 0"
+    assert np.load(out).shape == (60 * 5120,)

@@ -29,7 +29,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
 
 from vibsynth.errors import InputError, OutOfRangeError
 
@@ -430,5 +430,7 @@ def solve_clip_level(crest_factor: float) -> ClipTransform:
         return c / math.sqrt(clipped_gaussian_variance(c)) - target
 
     # c <= crest (since sigma_c <= 1) and c / sigma_c -> 1 as c -> 0
+    from scipy import optimize  # here only: slow to import, and a Gaussian drive never needs it
+
     level = optimize.brentq(mismatch, 1e-12, target, xtol=1e-15, rtol=1e-14)
     return ClipTransform(level)

@@ -34,7 +34,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import optimize, special
+from scipy import special
 
 from vibsynth.errors import InputError, OutOfRangeError
 
@@ -1029,6 +1029,8 @@ def _solve_form(residual, start, skewness, kurtosis):
         return residual(c3, c4, skewness, kurtosis)
 
     symmetric = skewness == 0.0  # c3 = 0 exactly (the skewness is odd in c3)
+
+    from scipy import optimize  # here only: slow to import, and a Gaussian drive never needs it
 
     starts = [start] + [(0.3 * start[0] * f, g) for f in (0.0, 1.0) for g in (0.05, 0.15, 0.3)]
     for c3_0, c4_0 in starts:

@@ -15,14 +15,20 @@ Measures
    complex-to-real inverse FFT of that length plus the same number of normal
    draws (goal <= 1.5x);
 2. generate streamed to .flac and .wav, one hour at 51.2 kHz: throughput
-   against the floor's rate (goal >= 0.5x) and peak RSS of the process
+   against the floor's rate (goal >= 0.6x) and peak RSS of the process
    (goal < 256 MB, and flat when the duration doubles: half an hour vs one hour);
 3. verify against scipy.signal.welch on the same in-memory array
    (goal <= 1.0x), and verify from a file in constant memory (peak RSS);
 4. non-Gaussian (kurtosis 6, compensated, planning included) against Gaussian generation
    (goal <= 1.3x), for one periodic record in memory and for an overlap-add stream;
 5. a naive sum-of-sines synthesis of the same spectrum against ours, at
-   growing sizes (shows the O(N^2) against O(N log N) scaling).
+   growing sizes (shows the O(N^2) against O(N log N) scaling);
+6. `vibsynth generate` of 2^24 samples at 51.2 kHz to .npy as a whole process
+   (interpreter start-up, imports, planning, synthesis, writing the file and its
+   sidecar), several repetitions, min and median against the floor (goal <= 1.5x).
+
+`--only NAME[,NAME...]` runs a subset (the floor is always measured):
+memory, nongaussian, verify, sines, parts, stream, process.
 
 The profile is invented demo data (20-2000 Hz).
 """
@@ -70,6 +76,7 @@ _CHILD = textwrap.dedent(
     """
 )
 # A small launcher in between: Linux keeps the parent's peak RSS in a child's ru_maxrss after fork.
+SECTIONS = ("memory", "nongaussian", "verify", "sines", "parts", "stream", "process")
 _LAUNCHER = "import subprocess, sys; sys.exit(subprocess.call(sys.argv[1:]))"
 
 
@@ -118,9 +125,18 @@ def main() -> None:
     parser = argparse.ArgumentParser(description="vibsynth benchmark: ratios measured in one run")
     parser.add_argument("--quick", action="store_true", help="smaller sizes and shorter streams")
     parser.add_argument("--rounds", type=int, default=3)
+    parser.add_argument("--only", default="", help="comma-separated subset: " + ",".join(SECTIONS))
+    parser.add_argument("--stream-seconds", type=float, default=None,
+                        help="duration of the streamed .flac/.wav measure (default 3600, 300 with --quick)")
+    parser.add_argument("--process-rounds", type=int, default=5,
+                        help="repetitions of the whole-process generate to .npy")
     options = parser.parse_args()
+    wanted = set(filter(None, options.only.split(","))) or set(SECTIONS)
+    unknown = wanted - set(SECTIONS)
+    if unknown:
+        parser.error(f"--only: unknown section(s) {', '.join(sorted(unknown))}; known: {', '.join(SECTIONS)}")
     samples = 1 << (20 if options.quick else 24)
-    stream_s = 300.0 if options.quick else 3600.0
+    stream_s = options.stream_seconds or (300.0 if options.quick else 3600.0)
     duration = samples / RATE_HZ
     rounds = options.rounds
     workers = default_workers()
@@ -134,8 +150,29 @@ def main() -> None:
     results["floor_s"] = floor
     rows.append(("floor: irfft + normal draws", f"{samples} samples", f"{floor:.3f} s", "", "reference"))
 
+    # 6. the whole process: `vibsynth generate` to .npy in a fresh interpreter, start-up included
+    if "process" in wanted:
+        with tempfile.TemporaryDirectory() as folder:
+            folder = Path(folder)
+            profile_path = folder / "bench.csv"
+            profile_path.write_text(PROFILE_CSV)
+            walls = []
+            for _ in range(options.process_rounds):
+                out = folder / "whole.npy"
+                _, wall = cli_child(["generate", str(profile_path), "-o", str(out), "--duration", repr(duration),
+                                     "--rate", str(int(RATE_HZ)), "--seed", "1", "--quiet"])
+                if np.load(out, mmap_mode="r").shape[0] != samples:
+                    raise RuntimeError("whole-process generate wrote the wrong number of samples")
+                walls.append(wall)
+            low, mid = min(walls), float(np.median(walls))
+            results["generate_process_npy_x_floor_min"] = low / floor
+            results["generate_process_npy_x_floor_median"] = mid / floor
+            results["generate_process_npy_walls_s"] = walls
+            rows.append(("generate to .npy, whole process (min/median)", f"{samples} samples",
+                         f"{low:.3f} / {mid:.3f} s", f"{low / floor:.2f} / {mid / floor:.2f} x floor", "<= 1.5"))
+
     # 1. in memory
-    for amplitude in ("fixed", "rayleigh"):
+    for amplitude in ("fixed", "rayleigh") if "memory" in wanted else ():
         seconds = best_of(lambda: generate_samples(PROFILE, duration, RATE_HZ, seed=1, amplitude=amplitude,
                                                    memory_budget_bytes=1 << 40), rounds)
         ratio = seconds / floor
@@ -146,7 +183,7 @@ def main() -> None:
     # 4. non-Gaussian (kurtosis 6: planning with its spectral compensation, transform, spill high-pass)
     # against Gaussian generation of the same record: in memory (one periodic record) and streamed
     # (overlap-add, drained in chunks, on the drive job's default worker threads)
-    for mode, budget in (("periodic", 1 << 40), ("overlap-add", 1)):
+    for mode, budget in ((("periodic", 1 << 40), ("overlap-add", 1)) if "nongaussian" in wanted else ()):
         def gaussian_job():
             plan = plan_synthesis(PROFILE, duration, RATE_HZ, memory_budget_bytes=budget)
             for _ in Synthesizer(plan, 1, workers).iter_chunks(1 << 16):
@@ -167,82 +204,86 @@ def main() -> None:
                      f"{ratio:.2f} x", "<= 1.3"))
 
     # 3. verify against scipy.signal.welch on the same array
-    x = generate_samples(PROFILE, duration, RATE_HZ, seed=2, memory_budget_bytes=1 << 40)
-    nperseg = 8192
-    t_scipy = best_of(lambda: signal.welch(x, fs=RATE_HZ, window="hann", nperseg=nperseg,
-                                           noverlap=nperseg // 2, detrend="constant", scaling="density"), rounds)
-    t_ours = best_of(lambda: welch_asd(x, RATE_HZ, nperseg), rounds)
-    results["welch_over_scipy"] = t_ours / t_scipy
-    rows.append(("Welch estimate vs scipy.signal.welch", f"{samples} samples", f"{t_ours:.3f} s",
-                 f"{t_ours / t_scipy:.2f} x", "<= 1.0"))
-    t_verify = best_of(lambda: verify_record(x, RATE_HZ, PROFILE, resolution_hz=RATE_HZ / nperseg), rounds)
-    results["verify_over_scipy_welch"] = t_verify / t_scipy
-    rows.append(("full verify (2 passes, stats) vs scipy welch", f"{samples} samples", f"{t_verify:.3f} s",
-                 f"{t_verify / t_scipy:.2f} x", "(context)"))
+    if "verify" in wanted:
+        x = generate_samples(PROFILE, duration, RATE_HZ, seed=2, memory_budget_bytes=1 << 40)
+        nperseg = 8192
+        t_scipy = best_of(lambda: signal.welch(x, fs=RATE_HZ, window="hann", nperseg=nperseg,
+                                               noverlap=nperseg // 2, detrend="constant", scaling="density"), rounds)
+        t_ours = best_of(lambda: welch_asd(x, RATE_HZ, nperseg), rounds)
+        results["welch_over_scipy"] = t_ours / t_scipy
+        rows.append(("Welch estimate vs scipy.signal.welch", f"{samples} samples", f"{t_ours:.3f} s",
+                     f"{t_ours / t_scipy:.2f} x", "<= 1.0"))
+        t_verify = best_of(lambda: verify_record(x, RATE_HZ, PROFILE, resolution_hz=RATE_HZ / nperseg), rounds)
+        results["verify_over_scipy_welch"] = t_verify / t_scipy
+        rows.append(("full verify (2 passes, stats) vs scipy welch", f"{samples} samples", f"{t_verify:.3f} s",
+                     f"{t_verify / t_scipy:.2f} x", "(context)"))
 
     # 5. naive sum of sines
-    for log2 in (10, 12, 14):
-        n = 1 << log2
-        t_naive = best_of(lambda: sum_of_sines(PROFILE, n, 8192.0, np.random.default_rng(1)), 1)
-        t_fast = best_of(lambda: generate_samples(PROFILE, n / 8192.0, 8192.0, seed=1, resolution_hz=8192.0 / n,
-                                                  memory_budget_bytes=1 << 40), rounds)
-        results[f"sum_of_sines_over_ours_2^{log2}"] = t_naive / t_fast
-        rows.append(("sum of sines vs ours", f"{n} samples", f"{t_naive:.3f} s", f"{t_naive / t_fast:.0f} x slower",
-                     "(scaling)"))
+    if "sines" in wanted:
+        for log2 in (10, 12, 14):
+            n = 1 << log2
+            t_naive = best_of(lambda: sum_of_sines(PROFILE, n, 8192.0, np.random.default_rng(1)), 1)
+            t_fast = best_of(lambda: generate_samples(PROFILE, n / 8192.0, 8192.0, seed=1, resolution_hz=8192.0 / n,
+                                                      memory_budget_bytes=1 << 40), rounds)
+            results[f"sum_of_sines_over_ours_2^{log2}"] = t_naive / t_fast
+            rows.append(("sum of sines vs ours", f"{n} samples", f"{t_naive:.3f} s", f"{t_naive / t_fast:.0f} x slower",
+                         "(scaling)"))
 
     # 2a. the parts of a streamed drive, in this process: the overlap-add generator alone (no file), once
-    # single-threaded and once on the default workers, and the drive writer alone (precomputed chunks)
-    stream_plan = plan_synthesis(PROFILE, duration, RATE_HZ, memory_budget_bytes=1)
-    for threads in sorted({1, workers}):
-        def drain(threads=threads):
-            for _ in Synthesizer(stream_plan, 1, threads).iter_chunks(1 << 16):
-                pass
+    if "parts" in wanted:
+        # single-threaded and once on the default workers, and the drive writer alone (precomputed chunks)
+        stream_plan = plan_synthesis(PROFILE, duration, RATE_HZ, memory_budget_bytes=1)
+        for threads in sorted({1, workers}):
+            def drain(threads=threads):
+                for _ in Synthesizer(stream_plan, 1, threads).iter_chunks(1 << 16):
+                    pass
 
-        seconds = best_of(drain, rounds)
-        results[f"generator_streamed_{threads}_threads_x_floor"] = floor / seconds
-        rows.append((f"overlap-add generator alone, {threads} thread(s)", f"{samples} samples", f"{seconds:.3f} s",
-                     f"{floor / seconds:.2f} x floor rate", "(context)"))
-    chunk = generate_samples(PROFILE, (1 << 16) / RATE_HZ, RATE_HZ, seed=3, memory_budget_bytes=1 << 40)
-    with tempfile.TemporaryDirectory() as folder:
-        for suffix in ("flac", "wav"):
-            target = Path(folder) / f"writer.{suffix}"
-
-            def write_only(target=target):
-                write_drive(target, (chunk for _ in range(samples >> 16)), rate_hz=RATE_HZ, samples=samples,
-                            scale=float(np.max(np.abs(chunk))) * 1.001)
-
-            seconds = best_of(write_only, rounds)
-            results[f"writer_{suffix}_x_floor"] = floor / seconds
-            rows.append((f"drive writer alone (.{suffix}, incl. fsync)", f"{samples} samples", f"{seconds:.3f} s",
+            seconds = best_of(drain, rounds)
+            results[f"generator_streamed_{threads}_threads_x_floor"] = floor / seconds
+            rows.append((f"overlap-add generator alone, {threads} thread(s)", f"{samples} samples", f"{seconds:.3f} s",
                          f"{floor / seconds:.2f} x floor rate", "(context)"))
+        chunk = generate_samples(PROFILE, (1 << 16) / RATE_HZ, RATE_HZ, seed=3, memory_budget_bytes=1 << 40)
+        with tempfile.TemporaryDirectory() as folder:
+            for suffix in ("flac", "wav"):
+                target = Path(folder) / f"writer.{suffix}"
+
+                def write_only(target=target):
+                    write_drive(target, (chunk for _ in range(samples >> 16)), rate_hz=RATE_HZ, samples=samples,
+                                scale=float(np.max(np.abs(chunk))) * 1.001)
+
+                seconds = best_of(write_only, rounds)
+                results[f"writer_{suffix}_x_floor"] = floor / seconds
+                rows.append((f"drive writer alone (.{suffix}, incl. fsync)", f"{samples} samples", f"{seconds:.3f} s",
+                             f"{floor / seconds:.2f} x floor rate", "(context)"))
 
     # 2b. streamed to files, in a fresh process each
-    with tempfile.TemporaryDirectory() as folder:
-        folder = Path(folder)
-        profile_path = folder / "bench.csv"
-        profile_path.write_text(PROFILE_CSV)
-        for suffix in ("flac", "wav"):
-            peaks = []
-            for seconds in (stream_s / 2, stream_s):
-                out = folder / f"stream.{suffix}"
-                rss, wall = cli_child(["generate", str(profile_path), "-o", str(out), "--duration", str(seconds),
-                                       "--rate", str(int(RATE_HZ)), "--seed", "1", "--quiet"])
-                peaks.append(rss)
-                total = seconds * RATE_HZ
-                # end to end: process start, peak pass (full scale from the record's peak) and encoding
-                throughput = (total / wall) / (samples / floor)
-                if seconds == stream_s:
-                    results[f"stream_{suffix}_throughput_x_floor"] = throughput
-                    results[f"stream_{suffix}_peak_rss_mb"] = rss
-                    rows.append((f"generate streamed to .{suffix}", f"{seconds:g} s at 51.2 kHz", f"{wall:.1f} s",
-                                 f"{throughput:.2f} x floor rate", ">= 0.5"))
-            results[f"stream_{suffix}_rss_mb_half_then_full"] = peaks
-            rows.append((f"  peak RSS .{suffix} (half, full duration)", "", "", f"{peaks[0]:.0f} / {peaks[1]:.0f} MB",
-                         "< 256, flat"))
-        rss, wall = cli_child(["verify", str(folder / "stream.flac"), "--json"])
-        results["verify_file_peak_rss_mb"] = rss
-        rows.append(("verify from .flac file (streamed)", f"{stream_s:g} s at 51.2 kHz", f"{wall:.1f} s",
-                     f"{rss:.0f} MB peak RSS", "constant memory"))
+    if "stream" in wanted:
+        with tempfile.TemporaryDirectory() as folder:
+            folder = Path(folder)
+            profile_path = folder / "bench.csv"
+            profile_path.write_text(PROFILE_CSV)
+            for suffix in ("flac", "wav"):
+                peaks = []
+                for seconds in (stream_s / 2, stream_s):
+                    out = folder / f"stream.{suffix}"
+                    rss, wall = cli_child(["generate", str(profile_path), "-o", str(out), "--duration", str(seconds),
+                                           "--rate", str(int(RATE_HZ)), "--seed", "1", "--quiet"])
+                    peaks.append(rss)
+                    total = seconds * RATE_HZ
+                    # end to end: process start, peak pass (full scale from the record's peak) and encoding
+                    throughput = (total / wall) / (samples / floor)
+                    if seconds == stream_s:
+                        results[f"stream_{suffix}_throughput_x_floor"] = throughput
+                        results[f"stream_{suffix}_peak_rss_mb"] = rss
+                        rows.append((f"generate streamed to .{suffix}", f"{seconds:g} s at 51.2 kHz", f"{wall:.1f} s",
+                                     f"{throughput:.2f} x floor rate", ">= 0.6"))
+                results[f"stream_{suffix}_rss_mb_half_then_full"] = peaks
+                rows.append((f"  peak RSS .{suffix} (half, full duration)", "", "", f"{peaks[0]:.0f} / {peaks[1]:.0f} MB",
+                             "< 256, flat"))
+            rss, wall = cli_child(["verify", str(folder / "stream.flac"), "--json"])
+            results["verify_file_peak_rss_mb"] = rss
+            rows.append(("verify from .flac file (streamed)", f"{stream_s:g} s at 51.2 kHz", f"{wall:.1f} s",
+                         f"{rss:.0f} MB peak RSS", "constant memory"))
 
     width = [max(len(str(r[i])) for r in rows + [("measure", "size", "time", "ratio", "goal")]) for i in range(5)]
     header = ("measure", "size", "time", "ratio", "goal")
