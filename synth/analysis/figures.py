@@ -365,11 +365,22 @@ def _axes(figure: Figure, box: tuple, left: float = 0.85, right: float = 0.3, bo
     x0, y0, w, h = box
     ax = figure.add_axes([(x0 + left) / width, (y0 + bottom) / height, (w - left - right) / width,
                           (h - bottom - top) / height])
-    _style(ax)
+    style_axes(ax)
     return ax
 
 
-def _style(ax):
+def style_axes(ax) -> None:
+    """The project's axes style (paper, spines, ticks, grid), shared by every figure of the tool.
+
+    Examples
+    --------
+    >>> from matplotlib.figure import Figure
+    >>> style_axes(Figure().add_subplot())
+
+    References
+    ----------
+    matplotlib's object API (Axes).
+    """
     ax.set_facecolor(PAPER)
     ax.set_axisbelow(True)
     for spine in ("top", "right"):

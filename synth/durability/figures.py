@@ -21,21 +21,16 @@ DRIVE = "#0b6e69"
 EXTRA = "#b23a25"
 MUTED = "#8a8174"
 GRID = "#ddd5c4"
-GRID_MINOR = "#eee7d8"
 
 
 def _style(ax) -> None:
-    ax.set_facecolor(PAPER)
-    ax.set_axisbelow(True)
-    for spine in ("top", "right"):
-        ax.spines[spine].set_visible(False)
-    for spine in ("left", "bottom"):
-        ax.spines[spine].set_color(MUTED)
-    ax.tick_params(colors=INK, labelsize=8.5)
-    ax.set_xscale("log")
-    ax.grid(True, which="major", color=GRID, linewidth=0.7)
-    ax.grid(True, which="minor", color=GRID_MINOR, linewidth=0.4)
+    """The verification figures' axes style, on a logarithmic natural-frequency axis."""
     from matplotlib.ticker import FuncFormatter
+
+    from vibsynth.analysis.figures import style_axes
+
+    style_axes(ax)
+    ax.set_xscale("log")
 
     ax.xaxis.set_major_formatter(FuncFormatter(lambda value, _: f"{value:g}"))
 
