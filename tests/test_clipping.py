@@ -59,7 +59,8 @@ def test_recurrence_matches_numpy():
 
 @pytest.mark.parametrize("c", LEVELS)
 def test_coefficients_match_numerical_integration(c):
-    # Reference: a_n = E[clip(U) He_n(U)] / n! by scipy.integrate.quad; closed form (DESIGN.md):
+    # Reference: a_n = E[clip(U) He_n(U)] / n! by scipy.integrate.quad; closed form (Hermite expansion of the
+    # hard limiter, Van Vleck & Middleton, Proc. IEEE 54(1), 1966):
     # a_1 = 2 Phi(c) - 1, odd n >= 3: a_n = -2 phi(c) He_{n-2}(c) / n!, even n: 0.
     a = clip_hermite_coefficients(c, 15)
     for n in range(16):

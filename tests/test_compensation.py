@@ -70,7 +70,8 @@ def test_mehler_hermite_correlation_identity(rho):
 
 @pytest.mark.parametrize("c3, c4", [(0.0, 0.0689), (0.15, 0.1), (-0.3, 0.2)])
 def test_cubic_correlation_map(c3, c4):
-    # Reference: DESIGN.md, rho_y = kappa^2 (rho + 2 c3^2 rho^2 + 6 c4^2 rho^3), and the
+    # Reference: Mehler's formula E[He_m(U1) He_n(U2)] = n! rho^n delta_mn (Winterstein 1988,
+    # J. Eng. Mech. 114(10)) gives rho_y = kappa^2 (rho + 2 c3^2 rho^2 + 6 c4^2 rho^3), and the
     # expectation E[y(U1) y(U2)] by 2-D Gauss-Hermite quadrature.
     transform = HermiteTransform.softening(c3, c4)
     weights = hermite_correlation_weights(transform.hermite_coefficients(3), transform.output_variance())

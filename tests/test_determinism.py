@@ -1,7 +1,7 @@
 """Determinism: the same seed and options give bitwise-identical drive files, whatever the process or chunk size.
 
-The design contract (shared/DESIGN.md): "Same seed and options: identical samples" and
-"the output must not depend on the chunk size used to write it".  Each case writes the same
+The project's promise to its users (README): the same seed and options give identical samples, and
+the output does not depend on the chunk size used to write it.  Each case writes the same
 drive three ways and compares the files byte for byte (and the sidecars as JSON):
 
 - in this process with the default chunk size of vibsynth.jobs;

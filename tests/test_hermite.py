@@ -49,7 +49,7 @@ COEFFICIENT_CASES = [(0.0, 0.05), (0.1, 0.07), (-0.25, 0.12), (0.4, 0.2), (0.05,
 @pytest.mark.parametrize("c3, c4", COEFFICIENT_CASES)
 def test_exact_moments_match_gauss_hermite_quadrature(c3, c4):
     # Reference: Gauss-Hermite quadrature (numpy hermegauss) integrates the degree-12
-    # polynomial z^4 exactly; the closed forms are Winterstein (1988) as quoted in DESIGN.md.
+    # polynomial z^4 exactly; the closed forms are Winterstein (1988), J. Eng. Mech. 114(10).
     z = _NODES + c3 * (_NODES**2 - 1.0) + c4 * (_NODES**3 - 3.0 * _NODES)
     m2, m3, m4 = cubic_hermite_moments(c3, c4)
     assert _gh_expectation(z) == pytest.approx(0.0, abs=1e-12)
@@ -70,8 +70,9 @@ def test_exact_moments_match_monte_carlo():
 
 
 def test_winterstein_1988_closed_forms_overshoot_kurtosis():
-    # Reference values: DESIGN.md "Notes on the published methods" (asking kurtosis 6 the 1988
-    # closed forms give 6.41; exact c4 = 0.0689), recomputed here by Gauss-Hermite quadrature.
+    # Reference values: Winterstein (1988), J. Eng. Mech. 114(10), closed forms for c3, c4; asking
+    # kurtosis 6 they give 6.41 and the exact c4 is 0.0689 (from memory), both recomputed here by
+    # Gauss-Hermite quadrature of the exact moments.
     c3, c4 = winterstein_1988_coefficients(0.0, 6.0)
     assert c3 == 0.0
     # c4 = (sqrt(1 + 1.5 * 3) - 1) / 18 (Winterstein 1988 closed form)

@@ -112,7 +112,7 @@ def test_slopes_from_the_previous_point_build_the_table():
 
 
 def test_singular_segment_n_minus_one_is_continuous():
-    # -3.0103 dB/octave is n = -1 exactly: area S1 f1 ln(f2/f1) (closed form, DESIGN.md / calculus).
+    # -3.0103 dB/octave is n = -1 exactly: area S1 f1 ln(f2/f1) (closed form: the integral of S1 f1 / f).
     flat_log = AsdProfile([100.0, 400.0], [0.04, 0.01])
     assert flat_log.exponents[0] == pytest.approx(-1.0, abs=1e-15)
     assert flat_log.mean_square_g2 == pytest.approx(0.04 * 100.0 * math.log(4.0), rel=1e-14)

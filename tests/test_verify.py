@@ -104,7 +104,7 @@ def test_good_record_passes_default_criteria_at_default_dof(amplitudes, seed):
     d = v.to_dict()
     assert v.passed, v.reasons
     assert d["failed"] == [] and d["reasons"] == []
-    # The default picks the finest resolution that still gives 120 dof (project default, DESIGN.md).
+    # The default picks the finest resolution that still gives 120 dof (the project's own default; 120 dof is common practice, no source).
     assert DEFAULT_TARGET_DOF <= d["asd"]["dof"] < 2 * DEFAULT_TARGET_DOF
     # Welch (1967), Hann at 50 % overlap with K segments: nu = 2K / (1 + (1 - 1/K)/18).
     k = d["asd"]["segments"]
