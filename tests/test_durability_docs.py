@@ -10,7 +10,7 @@ import sys
 
 import pytest
 
-MODULES = ["sdof", "filters", "rainflow", "damage", "equivalence", "shaker", "drive_input", "figures", "report"]
+MODULES = ["sdof", "filters", "rainflow", "damage", "equivalence", "shaker", "figures", "report"]
 
 
 @pytest.mark.parametrize("name", MODULES)

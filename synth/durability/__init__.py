@@ -11,8 +11,7 @@ drive samples; nothing here prints or writes.
 - :mod:`~vibsynth.durability.damage`: FDS (narrow band, Dirlik, time domain) and ERS;
 - :mod:`~vibsynth.durability.equivalence`: equivalent tests, test-time compression;
 - :mod:`~vibsynth.durability.shaker`: demands against a shaker's ratings;
-- :mod:`~vibsynth.durability.report`: one call per page (severity, fit) for any command;
-- :mod:`~vibsynth.durability.drive_input`: how a drive file is opened here (one function).
+- :mod:`~vibsynth.durability.report`: one call per page (severity, fit) for any command.
 
 The names below are imported on first use (PEP 562).
 """
@@ -47,7 +46,6 @@ _LAZY = {
     "shaker_fit": "vibsynth.durability.shaker",
     "drive_motion_peaks": "vibsynth.durability.shaker",
     "miles_difference": "vibsynth.durability.sdof",
-    "open_drive_samples": "vibsynth.durability.drive_input",
     "severity_report": "vibsynth.durability.report",
     "fit_report": "vibsynth.durability.report",
     "write_severity_figures": "vibsynth.durability.figures",

@@ -78,7 +78,7 @@ def severity_report(profile, duration_s: float, *, drive_path=None, report_dir=N
     ----------
     Lalanne, vol. 5; Dirlik (1985); Smallwood (1981); ASTM E1049-85 (2017).
     """
-    from vibsynth.durability.drive_input import open_drive_samples
+    from vibsynth.io.drivefile import open_drive
 
     if fn_hz is None:
         fn = natural_frequency_grid(profile.frequency_min_hz, profile.frequency_max_hz, 40)
@@ -88,7 +88,7 @@ def severity_report(profile, duration_s: float, *, drive_path=None, report_dir=N
     data = {"profile": profile.name, **spec.to_dict()}
     drive = None
     if drive_path is not None:
-        opened = open_drive_samples(drive_path, rate_hz=rate_hz, scale=scale)
+        opened = open_drive(drive_path, rate_hz=rate_hz, scale=scale)
         usable = fn <= DRIVE_FN_FRACTION * opened.rate_hz
         if not usable.any():
             raise InputError(f"sample rate {opened.rate_hz:g} Hz is too low for natural frequencies from "
@@ -169,12 +169,12 @@ def fit_report(profile, shaker_path, *, payload_kg: float = 0.0, drive_path=None
     ----------
     See :mod:`vibsynth.durability.shaker`.
     """
-    from vibsynth.durability.drive_input import open_drive_samples
+    from vibsynth.io.drivefile import open_drive
     from vibsynth.durability.shaker import drive_motion_peaks, read_shaker, shaker_fit
 
     rig = read_shaker(shaker_path)
     peaks = None
     if drive_path is not None:
-        opened = open_drive_samples(drive_path, rate_hz=rate_hz, scale=scale)
+        opened = open_drive(drive_path, rate_hz=rate_hz, scale=scale)
         peaks = drive_motion_peaks(opened.iter_chunks(1 << 16), opened.rate_hz, 0.5 * profile.frequency_min_hz)
     return shaker_fit(profile, rig, payload_kg=payload_kg, drive_peaks=peaks)
