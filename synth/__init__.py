@@ -47,7 +47,7 @@ __all__ = sorted([*_LAZY, "InputError", "OutOfRangeError", "VibsynthWarning", "_
 
 
 def __getattr__(name: str):
-    if name == "__version__":  # read from the metadata on first use (importlib.metadata is slow to import)
+    if name == "__version__":  # kept in vibsynth._version (pyproject.toml reads it from there)
         from vibsynth._version import __version__
 
         globals()["__version__"] = __version__

@@ -235,7 +235,6 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         from vibsynth.channel_jobs import prepare_channel_drive
 
         return prepare_channel_drive(profile, request, refuse_when_full)
-    from vibsynth.generate import design as nongaussian
     from vibsynth.generate import pipeline
     from vibsynth.generate import plan as synthesis
     from vibsynth.transforms.choice import plan_transform
@@ -289,6 +288,8 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     grms_lines = plan.line_variance**0.5
     design = None
     if transform is not None:
+        from vibsynth.generate import design as nongaussian  # on use: a Gaussian drive never loads scipy.special
+
         plan, design = nongaussian.make_nongaussian_plan(profile, plan, transform)
     if bursts:
         from vibsynth.generate.modulation import burst_plan

@@ -68,3 +68,39 @@ def test_python_dash_m_runs_the_command_line():
                             timeout=120)
     assert result.returncode == 0 and vibsynth.__version__ in result.stdout
     assert vibsynth.__version__ == metadata.version("vibsynth")
+
+
+def test_gaussian_drive_job_loads_no_scipy_special_fft_or_soundfile(tmp_path):
+    # Start-up is a third of a short drive job: a Gaussian .npy drive is made with numpy alone
+    # (scipy itself is imported only for its version string in the sidecar).
+    profile = tmp_path / "flat.csv"
+    profile.write_text("frequency_hz,asd_g2_per_hz\n20,0.01\n2000,0.01\n")
+    out = tmp_path / "drive.npy"
+    code = (
+        "import json, sys\n"
+        "from vibsynth.cli.main import main\n"
+        f"status = main(['generate', {str(profile)!r}, '-o', {str(out)!r}, '--duration', '2', '--rate', '8192',"
+        " '--seed', '3', '--quiet'])\n"
+        "print(json.dumps([status, sorted(sys.modules)]))\n"
+    )
+    status, loaded = json.loads(_fresh(code).strip().splitlines()[-1])
+    assert status == 0 and out.exists()
+    heavy = [m for m in loaded if m.startswith(("scipy.fft", "scipy.special", "scipy.signal", "scipy.stats",
+                                                "soundfile", "matplotlib", "importlib.metadata"))]
+    assert not heavy, heavy
+
+
+@pytest.mark.parametrize("length", [1000, 1001, 4096, 12288, 32768, 65536])
+def test_numpy_fft_equals_scipy_fft_bit_for_bit(length):
+    # The generator uses numpy.fft for the reason above; the drives' samples (pinned in
+    # test_sample_digests.py) rest on its giving the same values as scipy.fft, the same pocketfft
+    # engine (reference library: scipy.fft).
+    import numpy as np
+    import scipy.fft
+
+    rng = np.random.default_rng(length)
+    real = rng.standard_normal((length, 2))
+    lines = rng.standard_normal(length // 2 + 1) + 1j * rng.standard_normal(length // 2 + 1)
+    assert np.array_equal(np.fft.rfft(real, axis=0), scipy.fft.rfft(real, axis=0))
+    assert np.array_equal(np.fft.irfft(lines, n=length), scipy.fft.irfft(lines, n=length))
+    assert np.array_equal(np.fft.irfft(lines, n=length, norm="forward"), scipy.fft.irfft(lines, n=length, norm="forward"))

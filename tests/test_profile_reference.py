@@ -66,3 +66,18 @@ def test_sine_rms_is_peak_over_root_two():
     peak = 2.5
     x = peak * np.sin(2 * math.pi * 50 * t)
     assert math.sqrt(np.mean(x**2)) == pytest.approx(peak / math.sqrt(2), rel=1e-9)
+
+
+def test_exprel_equals_scipy_special_bit_for_bit():
+    # vibsynth.profile.asd.exprel replaces scipy.special.exprel (reference library) on the drive
+    # path; the segment integrals, and so the samples, depend on its giving the same values.
+    import numpy as np
+    from scipy.special import exprel as reference
+
+    from vibsynth.profile.asd import exprel
+
+    rng = np.random.default_rng(11)
+    x = np.concatenate([rng.standard_normal(2000) * scale for scale in (1e-17, 1e-16, 1e-12, 1e-3, 0.3, 3.0, 300.0)]
+                       + [np.array([0.0, -0.0, 709.0, 710.0, 717.0, 717.5, -800.0, np.inf, -np.inf])])
+    assert np.array_equal(exprel(x), reference(x))
+    assert np.isnan(exprel(np.nan)) and exprel(np.ones((2, 3))).shape == (2, 3)

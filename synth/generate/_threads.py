@@ -55,7 +55,7 @@ def ordered_map(function: Callable, items, workers: int, in_flight: int) -> Iter
     With ``workers > 1`` the calls run on a pool of that many threads, at most
     ``in_flight`` of them submitted ahead of the consumer (bounded memory), so
     the consumer's own work (e.g. encoding and writing a file) overlaps with
-    them.  Numpy's random draws, its ufuncs and ``scipy.fft`` release the
+    them.  Numpy's random draws, its ufuncs and its FFTs release the
     interpreter lock, so frames are made in parallel.  Each call must depend
     only on its item: the results are then the same as sequential calls, bit
     for bit.

@@ -28,7 +28,6 @@ import math
 from typing import Sequence
 
 import numpy as np
-import scipy.fft
 
 from vibsynth.errors import InputError
 
@@ -170,7 +169,7 @@ def synthesize_frame(line_spectrum, rate_hz: float, rng: np.random.Generator, am
         raise InputError("line spectrum needs at least two values", "line_spectrum")
     amplitudes = line_amplitudes(spectrum, rate_hz, frame_length)
     lines = _draw_lines(rng, amplitudes, amplitude)
-    return scipy.fft.irfft(lines, n=frame_length, overwrite_x=True)
+    return np.fft.irfft(lines, n=frame_length)
 
 
 def sine_window(frame_length: int) -> np.ndarray:

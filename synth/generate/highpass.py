@@ -43,9 +43,9 @@ from dataclasses import dataclass
 from typing import Iterator
 
 import numpy as np
-import scipy.fft
 
 from vibsynth.errors import InputError
+from vibsynth.generate._threads import frame_workers, ordered_map
 
 #: Pass-band edge of the spill-over high-pass, as a fraction of the lowest band frequency.
 HIGHPASS_PASS_FRACTION = 0.95
@@ -211,7 +211,7 @@ class SpillHighpass:
         kernel = np.zeros(int(window_samples))
         kernel[: d + 1] = taps[d:]
         kernel[-d:] = taps[:d]
-        return scipy.fft.rfft(kernel)
+        return np.fft.rfft(kernel)
 
     def record_response(self, samples: int) -> np.ndarray:
         """Real (zero-phase) response on the ``rfft`` lines of a record or frame of ``samples`` samples.
@@ -318,12 +318,12 @@ def periodic_highpass(y: np.ndarray, highpass: SpillHighpass) -> np.ndarray:
     Oppenheim & Schafer (2010), the DFT of a periodic sequence.
     """
     samples = y.size
-    spectrum = scipy.fft.rfft(y)
+    spectrum = np.fft.rfft(y)
     del y
     top = min(int(math.ceil(highpass.pass_edge_hz * samples / highpass.rate_hz)) + 1, spectrum.size)
     lines = np.arange(top) * (highpass.rate_hz / samples)
     spectrum[:top] *= highpass.response(lines)
-    return scipy.fft.irfft(spectrum, n=samples, overwrite_x=True)
+    return np.fft.irfft(spectrum, n=samples)
 
 
 def block_highpass(pair, block: int, lowpass_spectrum: np.ndarray | None) -> np.ndarray:
@@ -362,7 +362,7 @@ def block_highpass(pair, block: int, lowpass_spectrum: np.ndarray | None) -> np.
     window = np.concatenate((previous, current))
     if lowpass_spectrum is None:
         return window[shift : shift + block].copy()
-    lowpass = scipy.fft.irfft(scipy.fft.rfft(window) * lowpass_spectrum, n=window.size)
+    lowpass = np.fft.irfft(np.fft.rfft(window) * lowpass_spectrum, n=window.size)
     return window[shift : shift + block] - lowpass[shift : shift + block]
 
 
@@ -412,7 +412,7 @@ class PartitionedHighpass:
             kernel[: taps.size] = taps
             padded = np.zeros((count, 2 * size))
             padded[:, :size] = kernel.reshape(count, size)
-            self._spectra = scipy.fft.rfft(padded, axis=1)
+            self._spectra = np.fft.rfft(padded, axis=1)
         return self._spectra
 
     def first_piece(self, first_block: int) -> int:
@@ -423,31 +423,58 @@ class PartitionedHighpass:
         """Index of the last stream piece that output block ``last_block`` needs."""
         return last_block + self.lag
 
-    def filter(self, pieces: Iterator[np.ndarray]) -> Iterator[np.ndarray]:
+    def filter(self, pieces: Iterator[np.ndarray], workers: int = 1) -> Iterator[np.ndarray]:
         """Output blocks (P samples each) from the stream pieces ``first_piece .. last_piece``, in order.
 
         Pieces of shape (P,) or (P, channels) (each channel filtered alike).
+        With ``workers > 1`` the two halves of the work, the spectrum of each
+        pair of pieces and each block's multiply-accumulate and inverse FFT, run
+        on threads (:func:`vibsynth.generate._threads.ordered_map`): every
+        block is computed by the same operations in the same order, so the
+        output is the same bit for bit.
         """
         size, spectra, lag = self.partition, self.spectra, self.lag
         count = spectra.shape[0]
         direct = lag // 2  # the piece holding stream samples n + D of output block o is piece o + lag/2
-        recent: collections.deque = collections.deque(maxlen=count)
-        kept: collections.deque = collections.deque(maxlen=lag - direct + 1)
-        previous = None
-        for current in pieces:
-            if previous is not None:
-                if current.ndim == 2 and spectra.ndim == 2:
-                    spectra = spectra[:, :, None]
-                recent.append(scipy.fft.rfft(np.concatenate((previous, current)), axis=0))
+        threads, in_flight = frame_workers(workers, 2 * size)
+
+        def pairs():
+            previous = None
+            for current in pieces:
+                if previous is not None:
+                    yield previous, current
+                previous = current
+
+        def spectrum(pair):
+            previous, current = pair
+            return np.fft.rfft(np.concatenate((previous, current)), axis=0), current
+
+        def windows(transformed):
+            recent: collections.deque = collections.deque(maxlen=count)
+            kept: collections.deque = collections.deque(maxlen=lag - direct + 1)
+            for piece_spectrum, current in transformed:
+                recent.append(piece_spectrum)
                 kept.append(current)
                 if len(recent) == count:
-                    accumulated = recent[-1] * spectra[0]
-                    product = np.empty_like(accumulated)
-                    for q in range(1, count):
-                        accumulated += np.multiply(recent[-1 - q], spectra[q], out=product)
-                    lowpass = scipy.fft.irfft(accumulated, n=2 * size, axis=0, overwrite_x=True)
-                    yield kept[0] - lowpass[size:]
-            previous = current
+                    yield tuple(recent), kept[0]
+
+        def block(window):
+            recent, piece = window
+            kernel = spectra[:, :, None] if piece.ndim == 2 else spectra
+            accumulated = recent[-1] * kernel[0]
+            product = np.empty_like(accumulated)
+            for q in range(1, count):
+                accumulated += np.multiply(recent[-1 - q], kernel[q], out=product)
+            lowpass = np.fft.irfft(accumulated, n=2 * size, axis=0)
+            return piece - lowpass[size:]
+
+        transformed = ordered_map(spectrum, pairs(), threads, in_flight)
+        blocks = ordered_map(block, windows(transformed), threads, in_flight)
+        try:
+            yield from blocks
+        finally:
+            blocks.close()
+            transformed.close()
 
 
 def smooth_bound_gain(z: np.ndarray, limit: float, half_width: int, lo: int, hi: int) -> np.ndarray:

@@ -71,7 +71,6 @@ from __future__ import annotations
 from typing import Iterator
 
 import numpy as np
-import scipy.fft
 
 from vibsynth.errors import InputError
 from vibsynth.generate._threads import check_workers, frame_workers, ordered_map
@@ -199,8 +198,7 @@ class Synthesizer:
 
     def frame(self, index: int) -> np.ndarray:
         """Unwindowed periodic frame ``index`` (samples, or (samples, channels)), before transform, scale and ramps."""
-        return scipy.fft.irfft(self.frame_lines(index), n=self.plan.frame_length, axis=0, norm="forward",
-                               overwrite_x=True)
+        return np.fft.irfft(self.frame_lines(index), n=self.plan.frame_length, axis=0, norm="forward")
 
     def _windowed_frame(self, index: int) -> np.ndarray:
         frame = self.frame(index)
@@ -266,9 +264,9 @@ class Synthesizer:
             lines = self.frame_lines(0)
             total = plan.total_samples
             if plan.channels:  # multi-channel: one column per channel
-                columns = scipy.fft.irfft(lines, n=total, axis=0, norm="forward", overwrite_x=True)
+                columns = np.fft.irfft(lines, n=total, axis=0, norm="forward")
             elif len(plan.quantities) == 1:
-                columns = scipy.fft.irfft(lines, n=total, norm="forward", overwrite_x=True).reshape(total, 1)
+                columns = np.fft.irfft(lines, n=total, norm="forward").reshape(total, 1)
             else:
                 columns = np.empty((total, len(plan.quantities)))
                 omega = 2.0 * np.pi * plan.frequencies_hz[1:]
@@ -279,9 +277,9 @@ class Synthesizer:
                         integrated[1:] = lines[1:] * STANDARD_GRAVITY_M_S2 / (1j * omega)
                     else:
                         integrated[1:] = lines[1:] * (-STANDARD_GRAVITY_M_S2 / omega**2)
-                    columns[:, position] = scipy.fft.irfft(integrated, n=total, norm="forward", overwrite_x=True)
+                    columns[:, position] = np.fft.irfft(integrated, n=total, norm="forward")
                     del integrated
-                columns[:, 0] = scipy.fft.irfft(lines, n=total, norm="forward", overwrite_x=True)
+                columns[:, 0] = np.fft.irfft(lines, n=total, norm="forward")
                 if plan.rest_taper_samples:
                     self._bring_to_rest(columns, lines)
             del lines
@@ -320,7 +318,7 @@ class Synthesizer:
             # the column's values on the two tapered stretches only (irfft of the whole record, then sliced)
             column = np.zeros_like(lines)
             column[1:] = lines[1:] * spectrum_factor
-            values = scipy.fft.irfft(column, n=total, norm="forward", overwrite_x=True)
+            values = np.fft.irfft(column, n=total, norm="forward")
             return values[:r].copy(), values[total - r :].copy()
 
         x_head, x_tail = ends(-STANDARD_GRAVITY_M_S2 / omega**2)  # m
@@ -342,16 +340,31 @@ class Synthesizer:
         plan = self.plan
         hop = plan.hop
         plan._window, plan._stream_amplitudes, plan._band  # noqa: B018 - cached before the threads read them
+        if plan.modulation is not None and self._envelope_knots is None:
+            self._envelope_knots = plan.modulation.knots(self.root)
         threads, in_flight = frame_workers(self.workers, plan.frame_length)
         frames = ordered_map(self._windowed_frame, range(first_hop, last_hop + 2), threads, in_flight)
-        try:
-            previous = next(frames)
-            for index, following in enumerate(frames, start=first_hop):
-                out = previous[hop:]
-                out += following[:hop]
-                yield self._modulate(out, index * hop)
+
+        def neighbours():
+            previous = None
+            for index, following in enumerate(frames, start=first_hop - 1):
+                if previous is not None:
+                    yield index, previous, following
                 previous = following
+
+        def hop_block(item):
+            # the second half of frame `index` plus the first half of the next, summed in place: each hop
+            # block writes only its own frame's second half, so blocks can be summed on the threads
+            index, previous, following = item
+            out = previous[hop:]
+            out += following[:hop]
+            return self._modulate(out, index * hop)
+
+        blocks = ordered_map(hop_block, neighbours(), threads, in_flight)
+        try:
+            yield from blocks
         finally:
+            blocks.close()
             frames.close()
 
     def _stream_pieces(self, size: int, first: int, last: int) -> Iterator[np.ndarray]:
@@ -397,7 +410,7 @@ class Synthesizer:
             engine = self._partitioned
             pieces = self._stream_pieces(size, engine.first_piece(first_block), engine.last_piece(last_block))
             try:
-                yield from engine.filter(pieces)
+                yield from engine.filter(pieces, self.workers)
             finally:
                 pieces.close()
             return

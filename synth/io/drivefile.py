@@ -546,14 +546,18 @@ class DriveWriter:
         count = values.shape[0]
         if self.written + count > self.samples:
             raise InputError(f"more than the announced {self.samples} samples written", str(self.path))
-        if not np.all(np.isfinite(values)):
-            bad = int(np.flatnonzero(~np.all(np.isfinite(values), axis=1))[0])
-            raise InputError(f"sample {self.written + bad} is not a finite number", str(self.path))
-        if count and self.channels:
-            np.maximum(self._channel_peaks, np.max(np.abs(values), axis=0), out=self._channel_peaks)
-            self._peak = float(np.max(self._channel_peaks))
-        elif count:
-            self._peak = max(self._peak, float(np.max(np.abs(values[:, 0]))))
+        if count:
+            # one pass each for the largest and the smallest value: their magnitudes give the peak, and a
+            # NaN or an infinity anywhere makes one of them non-finite
+            peaks = np.maximum(np.max(values, axis=0), -np.min(values, axis=0))
+            if not np.all(np.isfinite(peaks)):
+                bad = int(np.flatnonzero(~np.all(np.isfinite(values), axis=1))[0])
+                raise InputError(f"sample {self.written + bad} is not a finite number", str(self.path))
+            if self.channels:
+                np.maximum(self._channel_peaks, peaks, out=self._channel_peaks)
+                self._peak = float(np.max(self._channel_peaks))
+            else:
+                self._peak = max(self._peak, float(peaks[0]))
         self._format_writer.write(values, self.written)
         self.written += count
 

@@ -68,7 +68,7 @@ class NpyWriter:
 
     def write(self, values: np.ndarray, written: int) -> None:
         """Append rows of physical values, shape (m, columns)."""
-        self._handle.write(np.ascontiguousarray(values if self.columns > 1 else values[:, 0], dtype="<f8").tobytes())
+        self._handle.write(memoryview(np.ascontiguousarray(values if self.columns > 1 else values[:, 0], dtype="<f8")))
 
     def close(self) -> None:
         """Close the file (idempotent)."""

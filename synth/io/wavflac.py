@@ -20,7 +20,6 @@ from pathlib import Path
 from typing import Iterator
 
 import numpy as np
-import soundfile
 
 from vibsynth.errors import InputError
 
@@ -64,6 +63,8 @@ def estimate_bytes(file_format: str, subtype: str, samples: int) -> tuple[int, b
     """
     count = int(samples)
     if file_format == "wav":
+        import soundfile  # imported on use: a .npy/.csv job never loads libsndfile
+
         buffer = io.BytesIO()
         with soundfile.SoundFile(buffer, mode="w", samplerate=8000, channels=1, format="WAV",
                                  subtype=SOUNDFILE_SUBTYPE[subtype]):
@@ -130,6 +131,8 @@ class AudioWriter:
         self.temporary, self.where, self.format, self.subtype = Path(temporary), where, file_format, subtype
         self.rate_hz, self.scale = float(rate_hz), float(scale)
         self.channels = int(channels)
+        import soundfile
+
         try:
             self._handle = soundfile.SoundFile(
                 str(self.temporary), mode="w", samplerate=int(round(self.rate_hz)), channels=int(channels),
@@ -229,6 +232,8 @@ def read_header(path: Path, file_format: str, channels: int = 1) -> tuple[float,
     ----------
     RIFF WAVE fmt chunk; FLAC STREAMINFO.
     """
+    import soundfile
+
     where = str(path)
     try:
         info = soundfile.info(str(path))
@@ -260,6 +265,8 @@ def iter_chunks(path: Path, file_format: str, chunk: int, start: int, stop: int,
     ----------
     libsndfile reading (PCM normalised to full scale 1.0).
     """
+    import soundfile
+
     with soundfile.SoundFile(str(path)) as handle:
         position = start
         try:

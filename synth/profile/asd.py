@@ -27,7 +27,6 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.special import exprel
 
 from vibsynth.errors import InputError
 from vibsynth.profile.units import STANDARD_GRAVITY_M_S2  # 9.80665 m/s^2 (CGPM 1901, ISO 80000-3)
@@ -35,6 +34,57 @@ from vibsynth.profile.units import STANDARD_GRAVITY_M_S2  # 9.80665 m/s^2 (CGPM 
 #: 10 log10(2): the dB/octave slope of an ASD that doubles every octave (about 3.0103).
 DB_PER_OCTAVE_DOUBLING = 10.0 * math.log10(2.0)
 
+
+
+def _exprel_scalar(x: float) -> float:
+    if abs(x) < _EPSILON:
+        return 1.0
+    if x > 717.0:
+        return math.inf
+    try:
+        return math.expm1(x) / x
+    except OverflowError:  # e^x beyond the largest double (x > 709.78...)
+        return math.inf
+
+
+_EPSILON = 2.0**-52
+
+
+def exprel(x) -> np.ndarray:
+    """``(e^x - 1) / x`` elementwise, 1 at ``x = 0`` (dimensionless).
+
+    The relative error function of the exponential, exact through its
+    removable singularity because ``expm1`` keeps its accuracy for small
+    ``x``.  Evaluated with the C library's ``expm1`` one element at a time
+    (``math.expm1``), which gives the same values, bit for bit, as
+    ``scipy.special.exprel``; it is here so that making a Gaussian drive
+    never imports ``scipy.special`` (whose import costs more start-up time
+    than a second of samples).  The arrays it sees are small: one entry per
+    profile segment, or per line at a band edge.
+
+    Parameters
+    ----------
+    x : array_like
+        Dimensionless argument.
+
+    Returns
+    -------
+    numpy.ndarray
+        Same shape as ``x``.
+
+    Examples
+    --------
+    >>> float(exprel(0.0)), round(float(exprel(1.0)), 12)
+    (1.0, 1.718281828459)
+
+    References
+    ----------
+    Abramowitz, M. & Stegun, I. A., *Handbook of Mathematical Functions*, NBS 1964,
+    4.2.1 (the exponential series: the limit 1 at x = 0).
+    """
+    values = np.asarray(x, dtype=float)
+    flat = [_exprel_scalar(value) for value in values.ravel().tolist()]
+    return np.array(flat, dtype=float).reshape(values.shape)
 
 def _readonly(values) -> np.ndarray:
     array = np.array(values, dtype=float)

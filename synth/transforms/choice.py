@@ -27,8 +27,6 @@ import numpy as np
 
 from vibsynth.errors import InputError, OutOfRangeError
 from vibsynth.transforms.base import MemorylessTransform
-from vibsynth.transforms.clipping import solve_clip_level
-from vibsynth.transforms.hermite import reachable_kurtosis_range, solve_cubic_hermite
 
 __all__ = ["gaussian_level", "plan_transform", "transform_family", "transform_record"]
 
@@ -101,6 +99,8 @@ def plan_transform(kurtosis: float | None = None, skewness: float | None = None,
                 "(and keeps the skewness at 0); give either clip or kurtosis/skewness",
                 "clip",
             )
+        from vibsynth.transforms.clipping import solve_clip_level  # on use: a Gaussian drive never loads scipy.special
+
         try:
             return solve_clip_level(clip)
         except OutOfRangeError as error:
@@ -115,6 +115,8 @@ def plan_transform(kurtosis: float | None = None, skewness: float | None = None,
     kurt = 3.0 if kurtosis is None else kurtosis
     if skew == 0.0 and kurt == 3.0:
         return None
+    from vibsynth.transforms.hermite import reachable_kurtosis_range, solve_cubic_hermite
+
     try:
         return solve_cubic_hermite(skew, kurt)
     except OutOfRangeError as error:
