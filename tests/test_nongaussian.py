@@ -312,6 +312,14 @@ def test_plan_carries_the_applied_transform_not_the_requested_one():
     assert design.requested_moments == pytest.approx((0.0, 6.0))
 
 
+def test_design_does_not_depend_on_the_pilot_threads():
+    base = plan_synthesis(GENTLE, (1 << 19) / RATE_HZ, RATE_HZ, memory_budget_bytes=256 * 2**20)
+    designs = [nongaussian_plan(GENTLE, base, plan_transform(kurtosis=6.0), workers=w)[1] for w in (1, 2, 3)]
+    for other in designs[1:]:
+        assert other.transform == designs[0].transform
+        assert np.array_equal(other.line_spectrum, designs[0].line_spectrum)
+
+
 def test_library_errors_name_parameters_not_options():
     with pytest.raises(InputError) as caught:
         plan_transform(kurtosis=5.0, clip=3.0)

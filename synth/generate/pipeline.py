@@ -103,6 +103,10 @@ __all__ = ["BOUND_PASSES", "KURTOSIS_MODELS", "Synthesizer", "check_kurtosis_mod
 #: so the bound holds exactly and no power reaches 0 Hz.
 BOUND_PASSES = 1
 
+#: A periodic record is transformed in stretches of this many samples (on the worker threads; the
+#: transform is memoryless, so the samples do not depend on it).
+_TRANSFORM_STRETCH = 1 << 20
+
 
 class Synthesizer:
     """Makes the samples of one planned record from one seed, in any order of chunks.
@@ -288,7 +292,7 @@ class Synthesizer:
             self._modulate(columns[:, 0], 0)
             if plan.transform is not None:
                 y = columns[:, 0]
-                plan.transform.apply(y, out=y)
+                self._apply_transform(y)
                 if plan.spill_highpass is not None:
                     del columns  # free the record before the inverse transform allocates the next
                     y = periodic_highpass(y, plan.spill_highpass)
@@ -308,6 +312,13 @@ class Synthesizer:
             self._ramp(columns, 0)
             self._record = columns
         return self._record
+
+    def _apply_transform(self, y: np.ndarray) -> None:
+        """The memoryless transform of a whole periodic record, in place (stretches on the worker threads)."""
+        transform = self.plan.transform
+        stretches = [slice(lo, lo + _TRANSFORM_STRETCH) for lo in range(0, y.shape[0], _TRANSFORM_STRETCH)]
+        for _ in ordered_map(lambda part: transform.apply(y[part], out=y[part]), stretches, self.workers, self.workers):
+            pass
 
     def _bring_to_rest(self, columns: np.ndarray, lines: np.ndarray) -> None:
         """Taper the displacement at both ends and differentiate analytically (in place; see
