@@ -294,13 +294,13 @@ class Synthesizer:
                 y = columns[:, 0]
                 self._apply_transform(y)
                 if plan.spill_highpass is not None:
-                    del columns  # free the record before the inverse transform allocates the next
-                    y = periodic_highpass(y, plan.spill_highpass)
+                    del columns  # a short record's inverse transform allocates the next; free this one first
+                    y = periodic_highpass(y, plan.spill_highpass, self.workers)
                     limit = plan.transform.peak_limit
                     if limit is not None:
                         for _ in range(BOUND_PASSES):  # alternating projections, see BOUND_PASSES
                             np.clip(y, -limit, limit, out=y)
-                            y = periodic_highpass(y, plan.spill_highpass)
+                            y = periodic_highpass(y, plan.spill_highpass, self.workers)
                         # the last overshoots: a smooth gain (circular: the record loops)
                         w = self._bound_half_width
                         padded = np.concatenate((y[-w:], y, y[:w]))
@@ -308,7 +308,7 @@ class Synthesizer:
                         del padded
                 columns = self._finish_transformed(y).reshape(-1, 1)
             elif plan.spill_highpass is not None:
-                columns = periodic_highpass(columns[:, 0], plan.spill_highpass).reshape(-1, 1)
+                columns = periodic_highpass(columns[:, 0], plan.spill_highpass, self.workers).reshape(-1, 1)
             self._ramp(columns, 0)
             self._record = columns
         return self._record
