@@ -63,7 +63,7 @@ CASES = [
     (dict(kurtosis=4.0), SMALL_BUDGET, 4.0, 0.0),
     (dict(kurtosis=6.0), SMALL_BUDGET, 6.0, 0.0),
     (dict(kurtosis=8.0), SMALL_BUDGET, 8.0, 0.0),
-    (dict(kurtosis=6.0), 256 * 2**20, 6.0, 0.0),  # periodic record, compensation interpolated from 2^20 lines
+    (dict(kurtosis=6.0), 256 * 2**20, 6.0, 0.0),  # periodic record, compensation interpolated from 2^18 lines
     (dict(skewness=0.5, kurtosis=4.0), SMALL_BUDGET, 4.0, 0.5),
     (dict(kurtosis=2.5), SMALL_BUDGET, 2.5, 0.0),  # hardening (inverse-polynomial) form
 ]
