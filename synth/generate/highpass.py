@@ -307,8 +307,8 @@ def periodic_highpass(y: np.ndarray, highpass: SpillHighpass, workers: int = 1) 
     Parameters
     ----------
     y : numpy.ndarray, shape (n,)
-        One period of the record (any unit).  A long C-contiguous float64
-        record is changed in place.
+        One period of the record (any unit).  A long record is changed in
+        place when it is a writeable C-contiguous float64 array (else a copy is).
     highpass : SpillHighpass
         With ``half_length`` None (the frequency-domain response).
     workers : int
@@ -337,7 +337,9 @@ def periodic_highpass(y: np.ndarray, highpass: SpillHighpass, workers: int = 1) 
     top = min(int(math.ceil(highpass.pass_edge_hz * samples / highpass.rate_hz)) + 1, samples // 2 + 1)
     gain = highpass.response(np.arange(top) * (highpass.rate_hz / samples))
     plan = lowband.block_plan(samples, top)
-    if plan is not None and y.dtype == np.float64 and y.ndim == 1 and y.flags.c_contiguous and y.flags.writeable:
+    if plan is not None:
+        if not (y.dtype == np.float64 and y.ndim == 1 and y.flags.c_contiguous and y.flags.writeable):
+            y = np.array(y, dtype=np.float64).ravel()  # a contiguous copy: the same samples whatever the layout
         change = lowband.low_lines(y, top, plan, workers)
         change *= gain - 1.0
         return lowband.add_low_lines(y, change, plan, workers)
