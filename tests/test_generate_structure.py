@@ -35,7 +35,7 @@ def test_transforms_never_load_the_generator():
     assert loaded == "[]"
 
 
-@pytest.mark.parametrize("module", ["seeds", "frames", "highpass", "plan", "design", "pipeline"])
+@pytest.mark.parametrize("module", ["seeds", "frames", "highpass", "lowband", "plan", "design", "pipeline"])
 def test_each_generate_module_imports_alone(module):
     # no import cycle: every module imports first in a fresh interpreter
     assert _fresh(f"import vibsynth.generate.{module}; print('ok')") == "ok"

@@ -65,10 +65,12 @@ _BOUND_WITHOUT_SPILL = ("a clipped drive keeps its bound without lines below the
                         "smooth gain instead of a last hard clip), issue 10 item 3")
 _PILOT_MOMENTS = ("the Hermite transform re-solved until high-passed pilot records reach the requested moments "
                   "(bench-flat: pilot kurtosis 5.94 -> 6.00 for 6), issue 10 item 5")
+#: "kurtosis-6-overlap-add" was listed under _PILOT_MOMENTS and matches this table again since a symmetric
+#: target's pilot skewness (sampling noise, 0.012 there) no longer forces pilot steps (issue 15): its first
+#: pilot kurtosis, 5.96 for 6, is within the tolerance, so the transform solved before the pilot is kept.
 CHANGED_SINCE_EDGE_FIX: dict[str, str] = {
     "clip-3-overlap-add": _BOUND_WITHOUT_SPILL,
     "clip-3-periodic": _BOUND_WITHOUT_SPILL,
-    "kurtosis-6-overlap-add": _PILOT_MOMENTS,
     "kurtosis-6-periodic": _PILOT_MOMENTS,
     "velocity-displacement": ("base motion starts and ends at rest by default (displacement taper of 4 periods of "
                               "the lowest frequency), issue 10 item 4"),

@@ -7,6 +7,7 @@ the number of threads.
 from __future__ import annotations
 
 import collections
+import os
 from concurrent.futures import ThreadPoolExecutor
 from typing import Callable, Iterator
 
@@ -47,6 +48,29 @@ def check_workers(workers) -> int:
     if isinstance(workers, (bool, np.bool_)) or count != workers or count < 1:
         raise InputError(f"workers {workers!r} must be an integer >= 1", "workers")
     return count
+
+
+def available_threads(limit: int = 8) -> int:
+    """The CPUs this process may run on, at most ``limit`` (at least 1).
+
+    Parameters
+    ----------
+    limit : int
+        Most threads returned.
+
+    Returns
+    -------
+    int
+
+    References
+    ----------
+    Python ``os.sched_getaffinity`` (where available) or ``os.cpu_count``.
+    """
+    try:
+        count = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        count = os.cpu_count() or 1
+    return max(1, min(int(count), int(limit)))
 
 
 def ordered_map(function: Callable, items, workers: int, in_flight: int) -> Iterator:

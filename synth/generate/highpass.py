@@ -12,7 +12,8 @@ chunk size a record is read in):
 
 :func:`periodic_highpass`
     a periodic record, exactly in the frequency domain (circular, so a looped
-    record still loops);
+    record still loops); a long record has only its lowest lines computed and
+    changed (:mod:`vibsynth.generate.lowband`) instead of two whole-record FFTs;
 :class:`PartitionedHighpass`
     a linear (Gaussian) overlap-add stream, by uniformly partitioned
     overlap-save: the FIR in partitions of P samples, FFTs of 2P that stay in
@@ -291,21 +292,33 @@ def partition_samples(highpass: SpillHighpass, hop: int) -> int:
     return min(max(block // HIGHPASS_PARTITIONS, min(MIN_HIGHPASS_PARTITION, int(hop))), block // 2)
 
 
-def periodic_highpass(y: np.ndarray, highpass: SpillHighpass) -> np.ndarray:
-    """A periodic record high-passed exactly in the frequency domain (circular); a new array.
+def periodic_highpass(y: np.ndarray, highpass: SpillHighpass, workers: int = 1) -> np.ndarray:
+    """A periodic record high-passed exactly in the frequency domain (circular).
 
-    Only the lines below the pass edge change (the response is 1 above it).
+    Only the lines below the pass edge change (the response is 1 above it).  A
+    record of at least :data:`vibsynth.generate.lowband.LOWBAND_MIN_SAMPLES`
+    samples (with a suitable divisor, see
+    :func:`vibsynth.generate.lowband.block_plan`) has just those lines computed
+    from block moments and their change added back in place
+    (:mod:`vibsynth.generate.lowband`; equal to the whole-record FFTs to
+    rounding); a shorter one is transformed whole (``rfft``, response,
+    ``irfft``) into a new array.
 
     Parameters
     ----------
     y : numpy.ndarray, shape (n,)
-        One period of the record (any unit).
+        One period of the record (any unit).  A long record is changed in
+        place when it is a writeable C-contiguous float64 array (else a copy is).
     highpass : SpillHighpass
         With ``half_length`` None (the frequency-domain response).
+    workers : int
+        Threads for the block moments of a long record (the samples do not
+        depend on it).
 
     Returns
     -------
     numpy.ndarray, shape (n,)
+        The high-passed record (``y`` itself when changed in place).
 
     Examples
     --------
@@ -315,14 +328,24 @@ def periodic_highpass(y: np.ndarray, highpass: SpillHighpass) -> np.ndarray:
 
     References
     ----------
-    Oppenheim & Schafer (2010), the DFT of a periodic sequence.
+    Oppenheim & Schafer (2010), the DFT of a periodic sequence; Anderson &
+    Dahleh (1996), the DFT's lowest lines by a Taylor expansion of its kernel.
     """
+    from vibsynth.generate import lowband
+
     samples = y.size
+    top = min(int(math.ceil(highpass.pass_edge_hz * samples / highpass.rate_hz)) + 1, samples // 2 + 1)
+    gain = highpass.response(np.arange(top) * (highpass.rate_hz / samples))
+    plan = lowband.block_plan(samples, top)
+    if plan is not None:
+        if not (y.dtype == np.float64 and y.ndim == 1 and y.flags.c_contiguous and y.flags.writeable):
+            y = np.array(y, dtype=np.float64).ravel()  # a contiguous copy: the same samples whatever the layout
+        change = lowband.low_lines(y, top, plan, workers)
+        change *= gain - 1.0
+        return lowband.add_low_lines(y, change, plan, workers)
     spectrum = np.fft.rfft(y)
     del y
-    top = min(int(math.ceil(highpass.pass_edge_hz * samples / highpass.rate_hz)) + 1, spectrum.size)
-    lines = np.arange(top) * (highpass.rate_hz / samples)
-    spectrum[:top] *= highpass.response(lines)
+    spectrum[:top] *= gain
     return np.fft.irfft(spectrum, n=samples)
 
 

@@ -102,6 +102,10 @@ __all__ = ["BOUND_PASSES", "KURTOSIS_MODELS", "Synthesizer", "check_kurtosis_mod
 #: so the bound holds exactly and no power reaches 0 Hz.
 BOUND_PASSES = 1
 
+#: A periodic record is transformed in stretches of this many samples (on the worker threads; the
+#: transform is memoryless, so the samples do not depend on it).
+_TRANSFORM_STRETCH = 1 << 20
+
 
 class Synthesizer:
     """Makes the samples of one planned record from one seed, in any order of chunks.
@@ -286,15 +290,15 @@ class Synthesizer:
             self._modulate(columns[:, 0], 0)
             if plan.transform is not None:
                 y = columns[:, 0]
-                plan.transform.apply(y, out=y)
+                self._apply_transform(y)
                 if plan.spill_highpass is not None:
-                    del columns  # free the record before the inverse transform allocates the next
-                    y = periodic_highpass(y, plan.spill_highpass)
+                    del columns  # a short record's inverse transform allocates the next; free this one first
+                    y = periodic_highpass(y, plan.spill_highpass, self.workers)
                     limit = plan.transform.peak_limit
                     if limit is not None:
                         for _ in range(BOUND_PASSES):  # alternating projections, see BOUND_PASSES
                             np.clip(y, -limit, limit, out=y)
-                            y = periodic_highpass(y, plan.spill_highpass)
+                            y = periodic_highpass(y, plan.spill_highpass, self.workers)
                         # the last overshoots: a smooth gain (circular: the record loops)
                         w = self._bound_half_width
                         padded = np.concatenate((y[-w:], y, y[:w]))
@@ -302,10 +306,17 @@ class Synthesizer:
                         del padded
                 columns = self._finish_transformed(y).reshape(-1, 1)
             elif plan.spill_highpass is not None:
-                columns = periodic_highpass(columns[:, 0], plan.spill_highpass).reshape(-1, 1)
+                columns = periodic_highpass(columns[:, 0], plan.spill_highpass, self.workers).reshape(-1, 1)
             self._ramp(columns, 0)
             self._record = columns
         return self._record
+
+    def _apply_transform(self, y: np.ndarray) -> None:
+        """The memoryless transform of a whole periodic record, in place (stretches on the worker threads)."""
+        transform = self.plan.transform
+        stretches = [slice(lo, lo + _TRANSFORM_STRETCH) for lo in range(0, y.shape[0], _TRANSFORM_STRETCH)]
+        for _ in ordered_map(lambda part: transform.apply(y[part], out=y[part]), stretches, self.workers, self.workers):
+            pass
 
     def _bring_to_rest(self, columns: np.ndarray, lines: np.ndarray) -> None:
         """Taper the displacement at both ends and differentiate analytically (in place; see
