@@ -73,15 +73,18 @@ def default_workers() -> int:
     int
         At least 1.
 
+    Examples
+    --------
+    >>> 1 <= default_workers() <= MAX_DEFAULT_WORKERS
+    True
+
     References
     ----------
     Python ``os.sched_getaffinity`` (where available) or ``os.cpu_count``.
     """
-    try:
-        count = len(os.sched_getaffinity(0))
-    except (AttributeError, OSError):
-        count = os.cpu_count() or 1
-    return max(1, min(int(count), MAX_DEFAULT_WORKERS))
+    from vibsynth.generate._threads import available_threads
+
+    return available_threads(MAX_DEFAULT_WORKERS)
 
 
 @dataclass(frozen=True)
