@@ -5,6 +5,11 @@ with `vibsynth generate PROFILE ARGS -o NAME.npy` for each case. The redesign mo
 the samples must not have moved with them. A row may change only when a named defect fix changes
 its samples; such rows are listed in CHANGED_BY_FIX with the reason, and the test then asserts that
 they do differ (so the list cannot go stale).
+
+The tables pin samples on the machine type they were written on (x86-64 with AVX-512): numpy's
+SIMD math functions (exp, log, sin, cos, power) round differently on CPUs without those
+instructions, so a drive made there from the same seed differs in the last bits. The samples do
+not depend on the number of threads, the chunk size or the start of a read (tests/test_determinism.py).
 """
 
 from __future__ import annotations
@@ -88,3 +93,25 @@ def test_samples_match_the_edge_line_table(case, tmp_path):
         assert digest != row["sha256"], f"{case} is listed as changed ({CHANGED_SINCE_EDGE_FIX[case]}) but matches"
     else:
         assert digest == row["sha256"], f"{case}: samples differ from the edge-line table"
+
+
+#: Version 0.2.0: the twelve cases above plus a long periodic non-Gaussian record (its spill high-pass
+#: from the lowest DFT lines, vibsynth.generate.lowband) and a burst-model drive. Every row is exact:
+#: a later change that moves one must name its fix here, as above.
+TABLE_0_2 = json.loads((Path(__file__).parent / "data" / "sample_digests_0_2.json").read_text())["cases"]
+CHANGED_SINCE_0_2: dict[str, str] = {}
+
+
+@pytest.mark.parametrize("case", sorted(TABLE_0_2))
+def test_samples_match_version_0_2(case, tmp_path):
+    row = TABLE_0_2[case]
+    if case in TABLE:
+        assert row["args"] == TABLE[case]["args"]
+    output = tmp_path / f"{case}.npy"
+    assert _generate(row["args"], output) == 0
+    assert json.loads(Path(str(output) + ".json").read_text())["plan"]["mode"] == row["mode"]
+    digest = hashlib.sha256(output.read_bytes()).hexdigest()
+    if case in CHANGED_SINCE_0_2:
+        assert digest != row["sha256"], f"{case} is listed as changed ({CHANGED_SINCE_0_2[case]}) but matches"
+    else:
+        assert digest == row["sha256"], f"{case}: samples differ from vibsynth 0.2.0"
