@@ -263,7 +263,7 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     check_mixed_request(mixed, request.rate_hz, names, request.loop, profile.source or profile.name)
     synthesis.rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)
     mixed_rig_limit_check(profile, request.stroke_limit_mm, request.velocity_limit_m_s)  # tones add their peaks
-    # the option alone picks periodic vs overlap-add (the same samples on every machine); a periodic
+    # the option alone picks periodic vs overlap-add (never the machine's memory); a periodic
     # record the machine cannot hold is refused by the planner.  Warnings are kept in plan.warnings.
     budget_bytes = request.memory_budget_mb * 2**20
     plan = synthesis.make_plan(

@@ -19,7 +19,7 @@ def check_machine_holds(needed_bytes: int, total_samples: int, rate_hz: float, n
     """Refuse a periodic record that needs more than half this machine's memory (an InputError, not a mode switch).
 
     The mode is chosen from the options alone, so the same options give the same
-    samples on every machine; a machine too small for them says so.
+    samples whatever the memory; a machine too small for them says so.
     """
     available = machine_memory_bytes() / 2
     if needed_bytes <= available:

@@ -47,7 +47,10 @@ high-pass as a transformed one does.
 
 Either way the record is a deterministic function of (seed, plan): it does not
 depend on the chunk size it is read in, on where a read starts, on the number
-of worker threads, nor on the machine.
+of worker threads, nor on the machine's memory.  Its last bits do depend
+on the CPU's instruction set: numpy's SIMD exp, log, sin and cos round
+differently with and without AVX-512, so the same seed gives the same
+samples to the last bit on machines of one type, equal to rounding across types.
 
 References
 ----------
@@ -703,7 +706,8 @@ def generate_samples(
         Sample rate in Hz (> 2 x the top frequency; below 2.56 x it a
         :class:`~vibsynth.errors.VibsynthWarning` is issued).
     seed : int, numpy.random.SeedSequence or numpy.random.Generator
-        Same seed and options: identical samples, on any machine.
+        Same seed and options: identical samples (to the last bit on machines with
+        the same instruction set; see the module docstring).
     amplitude : {"fixed", "rayleigh"}
         ``fixed`` (default): random phases, amplitudes fixed by the target
         (each frame's periodogram is the target).  ``rayleigh``: a true

@@ -12,7 +12,8 @@ record's layout from the options alone (never from the machine):
     refused with the longest duration that fits).  A periodic record that this
     machine cannot hold is refused too (an :class:`~vibsynth.errors.InputError`
     naming a smaller budget), never switched to overlap-add behind the
-    caller's back: the same options give the same samples on every machine.
+    caller's back: the same options give the same samples whatever the machine's
+    memory or cores.
 ``overlap-add``
     Independent sine-windowed frames of ``N`` samples (``N`` a power of two
     chosen from the profile's lowest frequency and narrowest segment, see
