@@ -83,7 +83,8 @@ def prepare_channel_drive(profile, request, refuse_when_full: bool = True):
     from vibsynth.generate import pipeline
     from vibsynth.generate import plan as synthesis
     from vibsynth.generate.channels import make_channel_plan
-    from vibsynth.jobs import SEED_DERIVATION, PreparedDrive, default_workers, request_seed, sidecar_options, tool_record
+    from vibsynth.jobs import (SEED_DERIVATION, PreparedDrive, default_workers, needs_peak_pass, request_seed,
+                               sidecar_options, tool_record)
 
     _refuse_nongaussian(request)
     file_format = drivefile.drive_format(request.output)
@@ -103,7 +104,8 @@ def prepare_channel_drive(profile, request, refuse_when_full: bool = True):
     drivefile.check_drive_request(request.output, rate_hz=plan.rate_hz, samples=plan.total_samples,
                                   subtype=subtype, channels=plan.channels, check_space=False)
     storage = drivefile.storage_plan(request.output, file_format, subtype, plan.total_samples, ("acceleration",),
-                                     plan.rate_hz, channels=len(plan.channels))
+                                     plan.rate_hz, channels=len(plan.channels),
+                                     peak_pass=needs_peak_pass(file_format, request.full_scale_g, plan.mode))
     if refuse_when_full and not storage["fits"]:
         raise drivefile.space_refusal(request.output, storage)
     seed = request_seed(request)
