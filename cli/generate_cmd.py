@@ -34,6 +34,11 @@ from vibsynth.cli.common import DRIVE_CAUTION, amplitude_options
 
 
 
+#: Time per sample of a .wav/.flac drive's second pass, against its first (peak) pass, for the time-left
+#: estimate of the progress lines and bar: reading the kept samples back and encoding them, or making the
+#: record again and encoding it (measured on a 2-core machine, one hour at 51.2 kHz; about, machine-dependent).
+SECOND_PASS_COST = {"cached": 0.35, "recomputed": 1.3}
+
 #: Non-Gaussian options, shared with `vibsynth run` (declared once in :mod:`vibsynth.cli.options`).
 kurtosis_option = options.kurtosis
 skewness_option = options.skewness
@@ -199,7 +204,9 @@ def progress_for(prepared, quiet: bool, as_json: bool = False):
         "cached": " (2 passes: the peak, then the file from the samples kept)",
         "recomputed": " (2 passes: the peak, then the file from the record made again)",
     }[prepared.peak_pass if prepared.passes > 1 else None]
-    with terminate_as_interrupt(), Progress(enabled, prepared.passes * total, "generating", style, what) as progress:
+    weights = (1.0, SECOND_PASS_COST[prepared.peak_pass]) if prepared.passes > 1 else (1.0,)
+    with terminate_as_interrupt(), Progress(enabled, prepared.passes * total, "generating", style, what,
+                                            weights) as progress:
         yield progress
 
 

@@ -352,3 +352,41 @@ def test_tagged_partials_follow_the_atomic_convention(tmp_path):
     for name, kept in names.items():
         assert (tmp_path / name).exists() == kept, name
     assert plain.exists() and tagged.exists()  # this process's own are never stale
+
+
+# ----------------------------------------------------------------------------- progress over the two passes
+def test_time_left_weighs_the_cheaper_second_pass(monkeypatch, capsys):
+    """Lines count samples of both passes; the time left weighs the second pass by its cost (a fake clock)."""
+    from vibsynth.cli import common, generate_cmd
+
+    clock = [100.0]
+    monkeypatch.setattr(common.time, "monotonic", lambda: clock[0])
+    monkeypatch.setattr(common, "PROGRESS_MIN_INTERVAL_S", 0.0)
+    weight = generate_cmd.SECOND_PASS_COST["cached"]
+    with common.Progress(True, 2000, "generating", "lines", "writing d.flac", (1.0, weight)) as progress:
+        clock[0] += 20.0
+        progress(1000)  # the first pass done in 20 s: the second should take about 20 x weight s
+        clock[0] += 20.0 * weight / 2
+        progress(500)
+    lines = capsys.readouterr().err.splitlines()
+    assert lines[1].startswith("vibsynth: writing d.flac:  50 % (1000 of 2000 samples, 20 s")
+    assert lines[1].endswith(f"about {20.0 * weight:.0f} s left)")
+    assert lines[2].endswith(f"about {20.0 * weight / 2:.0f} s left)")  # the rate held: half of it left
+    assert common.Progress(False, 2000, "x", pass_weights=(1.0, weight)).work(1500) == pytest.approx(1 + weight / 2)
+    assert common.Progress(False, 2000, "x").work(1500) == pytest.approx(0.75)  # one pass: plain fraction
+
+
+def test_generate_says_how_the_second_pass_gets_its_samples(tmp_path, profile_path, capsys, monkeypatch):
+    from vibsynth.cli import common, generate_cmd
+
+    monkeypatch.setattr(generate_cmd, "PROGRESS_MIN_SAMPLES", 1000)
+    monkeypatch.setattr(common, "PROGRESS_MIN_SAMPLES", 1000)
+    monkeypatch.setattr(common, "PROGRESS_MIN_INTERVAL_S", 0.0)
+    status = main(["generate", str(profile_path), "-o", str(tmp_path / "drive.flac"), "--duration", str(DURATION_S),
+                   "--rate", str(int(RATE)), "--seed", "5", "--memory-budget", "1"])
+    err = capsys.readouterr().err
+    assert status == 0, err
+    assert "2 passes over the record (the first keeps the samples in a 1.64 MB temporary file" in err
+    lines = [line for line in err.splitlines() if "% (" in line]
+    assert lines[-1].startswith("vibsynth: writing ") and "the file from the samples kept" in lines[-1]
+    assert f"100 % ({2 * int(DURATION_S * RATE)} of {2 * int(DURATION_S * RATE)} samples" in lines[-1]
