@@ -597,7 +597,12 @@ def _peak_pass(prepared: PreparedDrive, step, keep: bool):
                     _cache_dropped(error)
             step(len(chunk))
         if cache is not None:
-            cache.close()
+            try:
+                cache.close()
+            except OSError as error:  # the last chunks, written in the background, did not fit
+                cache.discard()
+                cache = None
+                _cache_dropped(error)
     except BaseException:
         if cache is not None:
             cache.discard()

@@ -252,18 +252,30 @@ def test_an_interrupt_leaves_nothing(tmp_path, profile_path, monkeypatch, where)
     assert _folder(tmp_path) == []
 
 
-def test_a_cache_that_cannot_be_written_falls_back_to_recomputing(tmp_path, profile_path, monkeypatch):
-    spy = _Spy(monkeypatch)
-    original = samplecache.SampleCache.write
-    seen = []
+class _SmallDisk:
+    """A file opened for writing that takes ``room`` bytes, then fails as a full disk does (ENOSPC)."""
 
-    def full_disk(cache, chunk):
-        seen.append(cache.path)
-        if len(seen) == 2:
+    def __init__(self, path, mode, room):
+        self._file, self._room = open(path, mode), room
+
+    def write(self, data):
+        size = memoryview(data).nbytes
+        if size > self._room:
             raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
-        return original(cache, chunk)
+        self._room -= size
+        return self._file.write(data)
 
-    monkeypatch.setattr(samplecache.SampleCache, "write", full_disk)
+    def close(self):
+        self._file.close()
+
+
+@pytest.mark.parametrize("room_chunks", [0.5, 2.5])
+def test_a_cache_that_cannot_be_written_falls_back_to_recomputing(tmp_path, profile_path, monkeypatch, room_chunks):
+    # the disk fills on the first chunk, or later (the error then shows at a later write or at the close)
+    spy = _Spy(monkeypatch)
+    room = int(room_chunks * 8 * jobs.CHUNK_SAMPLES)
+    monkeypatch.setattr(samplecache, "open", lambda path, mode="r": _SmallDisk(path, mode, room) if "w" in mode
+                        else open(path, mode), raising=False)
     (tmp_path / "a").mkdir()
     (tmp_path / "b").mkdir()
     with pytest.warns(VibsynthWarning, match="made again for the second pass"):

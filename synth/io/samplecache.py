@@ -30,6 +30,8 @@ POSIX open(2), write(2), unlink(2); NumPy ``ndarray.tofile`` / ``numpy.fromfile`
 from __future__ import annotations
 
 import os
+import queue
+import threading
 from pathlib import Path
 from typing import Iterator
 
@@ -42,6 +44,9 @@ CACHE_TAG = "peak-cache"
 
 #: Bytes per cached value (float64).
 BYTES_PER_VALUE = 8
+
+#: Chunks handed to the background writer and not yet written, at most (bounded memory).
+WRITE_AHEAD_CHUNKS = 4
 
 
 def cache_bytes(samples: int, columns: int = 1) -> int:
@@ -83,9 +88,13 @@ class SampleCache:
 
     Notes
     -----
-    :meth:`write` appends chunks; :meth:`iter_chunks` reads them back in
-    chunks of a given length, one at a time (constant memory, never the
-    whole record); :meth:`discard` removes the file (idempotent).  As a
+    :meth:`write` appends chunks: a background thread writes them (at most
+    :data:`WRITE_AHEAD_CHUNKS` waiting), so the caller goes on making the
+    next one while the file system takes this one; a chunk must not be
+    changed after it is handed over.  A write error shows at the next
+    :meth:`write` or at :meth:`close`.  :meth:`iter_chunks` reads the values
+    back in chunks of a given length, one at a time (constant memory, never
+    the whole record); :meth:`discard` removes the file (idempotent).  As a
     context manager the file is removed on leaving the block, however it is
     left.  Stale caches of killed runs (their process gone, unchanged for
     :data:`vibsynth.io.atomic.STALE_PARTIAL_AGE_S`) are removed on creation.
@@ -113,14 +122,31 @@ class SampleCache:
         self.columns = max(int(columns), 1)
         self.samples = 0
         self._handle = None
+        self._thread = None
+        self._error = None
+        self._queue: queue.Queue = queue.Queue(WRITE_AHEAD_CHUNKS)
         self.path = None
         atomic.remove_stale_partials(self.destination)
         self.path = atomic.partial_path(self.destination, CACHE_TAG)
         try:
             self._handle = open(self.path, "wb")
+            self._thread = threading.Thread(target=self._drain, name="vibsynth-sample-cache", daemon=True)
+            self._thread.start()
         except BaseException:
             self.discard()
             raise
+
+    def _drain(self) -> None:
+        """The background writer: chunks from the queue to the file until None; after an error, drop the rest."""
+        while True:
+            values = self._queue.get()
+            if values is None:
+                return
+            if self._error is None:
+                try:
+                    self._handle.write(memoryview(values).cast("B"))
+                except BaseException as error:  # noqa: BLE001 - handed to the caller at its next write or close
+                    self._error = error
 
     @property
     def bytes(self) -> int:
@@ -133,25 +159,40 @@ class SampleCache:
         Raises
         ------
         OSError
-            The file cannot take it (a full disk, a quota).
+            The file could not take an earlier chunk (a full disk, a quota).
         ValueError
             A chunk of another width, or after reading began.
         """
-        if self._handle is None:
+        if self._thread is None:
             raise ValueError("the sample cache is closed for writing")
+        if self._error is not None:
+            raise self._error
         values = np.ascontiguousarray(chunk, dtype=np.float64)
         if values.ndim == 1:
             values = values[:, None]
         if values.ndim != 2 or values.shape[1] != self.columns:
             raise ValueError(f"chunk of shape {np.shape(chunk)} does not match {self.columns} column(s)")
-        self._handle.write(memoryview(values).cast("B"))
+        self._queue.put(values)
         self.samples += values.shape[0]
 
     def close(self) -> None:
-        """Finish writing (idempotent); the file stays until :meth:`discard`."""
+        """Finish writing (idempotent); the file stays until :meth:`discard`.
+
+        Raises
+        ------
+        OSError
+            The file could not take a chunk (a full disk, a quota).
+        """
+        if self._thread is not None:
+            thread, self._thread = self._thread, None
+            self._queue.put(None)
+            thread.join()
         if self._handle is not None:
             handle, self._handle = self._handle, None
             handle.close()
+        if self._error is not None:
+            error, self._error = self._error, None
+            raise error
 
     def iter_chunks(self, chunk_samples: int = 65536) -> Iterator[np.ndarray]:
         """The cached values in order, in fresh arrays of shape (m, columns), m <= ``chunk_samples``.
@@ -182,9 +223,11 @@ class SampleCache:
                 yield values.reshape(count, self.columns)
 
     def discard(self) -> None:
-        """Close and remove the file (idempotent)."""
+        """Close and remove the file (idempotent; a write error is dropped with the file)."""
         try:
             self.close()
+        except OSError:
+            pass
         finally:
             if self.path is not None:
                 try:
