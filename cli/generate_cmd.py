@@ -69,7 +69,9 @@ clip_option = options.clip
               help="Sample format: .wav float (default), pcm24 or pcm16; .flac pcm24 (default) or pcm16.")
 @click.option("--full-scale", "full_scale_g", type=types.positive(), default=None, metavar="G",
               help=".wav/.flac: the g value of full scale (sample 1.0). Default: the record's peak plus 0.1 %, "
-                   "found by a first pass. A sample beyond a given full scale stops the run; nothing is clipped.")
+                   "found by a first pass (a long record keeps its samples in a hidden temporary file beside FILE, "
+                   "8 bytes per sample, for the second). A sample beyond a given full scale stops the run; nothing "
+                   "is clipped.")
 @click.option("--memory-budget", "memory_budget_mb", type=types.FiniteFloatRange(min=1), default=256.0,
               show_default=True, metavar="MB",
               help="Working memory for one periodic inverse FFT of the whole record; longer records are made by "
@@ -108,7 +110,11 @@ def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_li
 
     Before writing, the file's size is worked out (exact for .wav/.npy, an
     upper bound for .flac/.csv) and the drive is refused (exit 2) when the
-    folder cannot hold it and its sidecar.  A long record (2^21 samples or
+    folder cannot hold it and its sidecar.  A long .wav/.flac record whose
+    full scale follows its peak keeps the first pass's samples in a hidden
+    temporary file beside FILE (8 bytes per sample and channel, removed when
+    done) so it is generated once; without room for that file as well, the
+    record is made twice instead (same file).  A long record (2^21 samples or
     more) has its size and number of passes printed on stderr first (not with
     --quiet), and reports progress: a bar on a terminal, a line every 5 % (at most one
     per 10 s) without one, JSON lines with --json.  --dry-run stops after that
