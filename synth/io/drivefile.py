@@ -464,6 +464,14 @@ class PreparedChunk:
     payload : numpy.ndarray
         What the format's writer stores (.wav/.flac: normalised samples or
         integer counts; .csv/.npy: the physical values).
+
+    Examples
+    --------
+    See :meth:`DriveWriter.prepare`.
+
+    References
+    ----------
+    See the module docstring.
     """
 
     position: int
