@@ -402,3 +402,11 @@ def test_generate_says_how_the_second_pass_gets_its_samples(tmp_path, profile_pa
     lines = [line for line in err.splitlines() if "% (" in line]
     assert lines[-1].startswith("vibsynth: writing ") and "the file from the samples kept" in lines[-1]
     assert f"100 % ({2 * int(DURATION_S * RATE)} of {2 * int(DURATION_S * RATE)} samples" in lines[-1]
+
+
+def test_the_cache_modules_examples_run_as_written():
+    import doctest
+
+    for module in (samplecache, atomic):
+        result = doctest.testmod(module, optionflags=doctest.ELLIPSIS)
+        assert result.attempted > 0 and result.failed == 0, module.__name__
