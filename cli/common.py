@@ -288,27 +288,47 @@ class Progress:
     events (e.g. ``writing drive.npy``).  Lines after the first say about how
     long is left, from the rate so far (s).
 
+    ``pass_weights`` splits ``length`` into equal passes of unequal cost
+    (e.g. ``(1.0, 0.35)``: the second pass takes about 0.35 x the time of the
+    first per sample); the time left and the terminal bar follow the weighted
+    work, the lines and events still count samples.
+
     Examples
     --------
     >>> with Progress(False, 100, "x") as progress:
     ...     progress(50)
+    >>> Progress(False, 200, "x", pass_weights=(1.0, 0.5)).work(150)
+    1.25
 
     References
     ----------
     click.progressbar (the terminal bar); JSON Lines (one RFC 8259 object per line).
     """
 
-    def __init__(self, enabled: bool, length: int, label: str, style: str | None = None, what: str | None = None):
+    def __init__(self, enabled: bool, length: int, label: str, style: str | None = None, what: str | None = None,
+                 pass_weights: tuple = (1.0,)):
         self.style = (style or "bar") if enabled else None
         self.length = max(int(length), 1)
         self.label = label
         self.what = what or label
+        self.pass_weights = tuple(float(w) for w in pass_weights) or (1.0,)
         self.done = 0
         self.started = time.monotonic()
         self._last_step = -1
         self._last_time = None
-        self.bar = (click.progressbar(length=length, label=label, file=sys.stderr)
+        self._bar_units = 0
+        self.bar = (click.progressbar(length=self._units(self.length), label=label, file=sys.stderr)
                     if self.style == "bar" else None)
+
+    def work(self, done: int) -> float:
+        """Weighted work of ``done`` samples, in units of one first-pass record (see ``pass_weights``)."""
+        size = self.length / len(self.pass_weights)
+        return sum(weight * min(max(done - index * size, 0.0), size)
+                   for index, weight in enumerate(self.pass_weights)) / size
+
+    def _units(self, done: int) -> int:
+        """The bar's position for ``done`` samples: weighted work in thousandths of a first-pass record."""
+        return int(round(1000 * self.work(done))) if len(self.pass_weights) > 1 else int(done)
 
     def __enter__(self):
         if self.bar is not None:
@@ -324,10 +344,12 @@ class Progress:
     def __call__(self, samples: int) -> None:
         if self.style is None:
             return
-        if self.bar is not None:
-            self.bar.update(samples)
-            return
         self.done = min(self.done + int(samples), self.length)
+        if self.bar is not None:
+            units = self._units(self.done)
+            self.bar.update(units - self._bar_units)
+            self._bar_units = units
+            return
         percent = 100.0 * self.done / self.length
         step = int(percent // PROGRESS_STEP_PERCENT)
         if step > self._last_step:
@@ -349,7 +371,8 @@ class Progress:
         else:
             left = ""
             if 0 < self.done < self.length:
-                left = f", about {elapsed * (self.length - self.done) / self.done:.0f} s left"
+                done_work = self.work(self.done)
+                left = f", about {elapsed * (self.work(self.length) - done_work) / done_work:.0f} s left"
             click.echo(f"vibsynth: {self.what}: {percent:3.0f} % ({self.done} of {self.length} samples, "
                        f"{elapsed:.0f} s{left})", err=True)
 

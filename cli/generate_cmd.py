@@ -34,6 +34,11 @@ from vibsynth.cli.common import DRIVE_CAUTION, amplitude_options
 
 
 
+#: Time per sample of a .wav/.flac drive's second pass, against its first (peak) pass, for the time-left
+#: estimate of the progress lines and bar: reading the kept samples back and encoding them, or making the
+#: record again and encoding it (measured on a 2-core machine, one hour at 51.2 kHz; about, machine-dependent).
+SECOND_PASS_COST = {"cached": 0.35, "recomputed": 1.3}
+
 #: Non-Gaussian options, shared with `vibsynth run` (declared once in :mod:`vibsynth.cli.options`).
 kurtosis_option = options.kurtosis
 skewness_option = options.skewness
@@ -64,7 +69,9 @@ clip_option = options.clip
               help="Sample format: .wav float (default), pcm24 or pcm16; .flac pcm24 (default) or pcm16.")
 @click.option("--full-scale", "full_scale_g", type=types.positive(), default=None, metavar="G",
               help=".wav/.flac: the g value of full scale (sample 1.0). Default: the record's peak plus 0.1 %, "
-                   "found by a first pass. A sample beyond a given full scale stops the run; nothing is clipped.")
+                   "found by a first pass (a long record keeps its samples in a hidden temporary file beside FILE, "
+                   "8 bytes per sample, for the second). A sample beyond a given full scale stops the run; nothing "
+                   "is clipped.")
 @click.option("--memory-budget", "memory_budget_mb", type=types.FiniteFloatRange(min=1), default=256.0,
               show_default=True, metavar="MB",
               help="Working memory for one periodic inverse FFT of the whole record; longer records are made by "
@@ -103,7 +110,11 @@ def generate(profile, output, duration, rate, seed, amplitude, ramp_s, stroke_li
 
     Before writing, the file's size is worked out (exact for .wav/.npy, an
     upper bound for .flac/.csv) and the drive is refused (exit 2) when the
-    folder cannot hold it and its sidecar.  A long record (2^21 samples or
+    folder cannot hold it and its sidecar.  A long .wav/.flac record whose
+    full scale follows its peak keeps the first pass's samples in a hidden
+    temporary file beside FILE (8 bytes per sample and channel, removed when
+    done) so it is generated once; without room for that file as well, the
+    record is made twice instead (same file).  A long record (2^21 samples or
     more) has its size and number of passes printed on stderr first (not with
     --quiet), and reports progress: a bar on a terminal, a line every 5 % (at most one
     per 10 s) without one, JSON lines with --json.  --dry-run stops after that
@@ -192,21 +203,34 @@ def progress_for(prepared, quiet: bool, as_json: bool = False):
     style = None
     if enabled:
         style = "json" if as_json else ("bar" if is_interactive_stderr() else "lines")
-    note(f"writing {prepared.request.output}: {total} samples, {prepared.plan.mode}, {prepared.passes} pass(es)")
-    what = f"writing {prepared.request.output}" + (f" ({prepared.passes} passes)" if prepared.passes > 1 else "")
-    with terminate_as_interrupt(), Progress(enabled, prepared.passes * total, "generating", style, what) as progress:
+    note(f"writing {prepared.request.output}: {total} samples, {prepared.plan.mode}, {prepared.passes} pass(es)"
+         + (f", peak pass {prepared.peak_pass}" if prepared.peak_pass else ""))
+    what = f"writing {prepared.request.output}" + {
+        None: "",
+        "cached": " (2 passes: the peak, then the file from the samples kept)",
+        "recomputed": " (2 passes: the peak, then the file from the record made again)",
+    }[prepared.peak_pass if prepared.passes > 1 else None]
+    weights = (1.0, SECOND_PASS_COST[prepared.peak_pass]) if prepared.passes > 1 else (1.0,)
+    with terminate_as_interrupt(), Progress(enabled, prepared.passes * total, "generating", style, what,
+                                            weights) as progress:
         yield progress
 
 
 def dry_run_summary(prepared) -> dict:
     """The plan of a drive as plain data (``generate --dry-run --json``; the ``plan`` event before writing).
 
-    Keys: ``mode``, ``passes``, ``samples``, ``bytes`` (the file; exact when
-    ``bytes_exact``, else an upper bound), ``needed_bytes`` (with the sidecar),
-    ``free_bytes`` (None when the file system will not say), ``fits``,
-    ``rate_hz``, ``duration_s``, ``frame_length_samples``, ``line_spacing_hz``,
-    ``file``, ``sidecar``, ``format``, ``subtype``, ``columns``, ``seed``.
-    Sizes in bytes, rate in Hz, duration in s.
+    Keys: ``mode``, ``passes``, ``peak_pass`` (with 2 passes: ``"cached"``,
+    the first pass keeps the samples in a temporary file that the second reads
+    back; ``"recomputed"``, the folder has no room for that file, so the second
+    pass makes the record again; None with one pass), ``samples``, ``bytes``
+    (the file; exact when ``bytes_exact``, else an upper bound),
+    ``cache_bytes`` (the peak pass's temporary file, 8 bytes x samples x
+    columns; 0 without a peak pass), ``needed_bytes`` (the most the write
+    holds on disk at once: file, sidecar and, when ``"cached"``, the
+    temporary), ``free_bytes`` (None when the file system will not say),
+    ``fits``, ``rate_hz``, ``duration_s``, ``frame_length_samples``,
+    ``line_spacing_hz``, ``file``, ``sidecar``, ``format``, ``subtype``,
+    ``columns``, ``seed``.  Sizes in bytes, rate in Hz, duration in s.
 
     Examples
     --------
@@ -233,6 +257,7 @@ def dry_run_summary(prepared) -> dict:
         "columns": list(plan.quantities),
         "mode": plan.mode,
         "passes": prepared.passes,
+        "peak_pass": prepared.peak_pass,
         "samples": plan.total_samples,
         "rate_hz": plan.rate_hz,
         "duration_s": plan.total_samples / plan.rate_hz,
@@ -241,6 +266,7 @@ def dry_run_summary(prepared) -> dict:
         "seed": request.seed,
         "bytes": storage.get("bytes"),
         "bytes_exact": storage.get("bytes_exact"),
+        "cache_bytes": storage.get("cache_bytes", 0) if prepared.passes > 1 else 0,
         "needed_bytes": storage.get("needed_bytes"),
         "free_bytes": storage.get("free_bytes"),
         "fits": bool(storage.get("fits", True)),
@@ -260,6 +286,31 @@ def _free_text(report: dict) -> str:
     return "free space unknown" if report["free_bytes"] is None else f"{format_bytes(report['free_bytes'])} free"
 
 
+def _passes_text(report: dict) -> str:
+    """``N pass(es) over the record``, and for two passes how the second gets the record (from :func:`dry_run_summary`).
+
+    Examples
+    --------
+    >>> _passes_text({"passes": 2, "peak_pass": "cached", "cache_bytes": 1474560000})
+    '2 passes over the record (the first keeps the samples in a 1.47 GB temporary file for the second)'
+
+    References
+    ----------
+    See :func:`dry_run_summary`.
+    """
+    from vibsynth.io.drivefile import format_bytes
+
+    passes = report["passes"]
+    text = f"{passes} pass{'es' if passes > 1 else ''} over the record"
+    mode = report.get("peak_pass")
+    if passes > 1 and mode == "cached":
+        text += f" (the first keeps the samples in a {format_bytes(report['cache_bytes'])} temporary file for the second)"
+    elif passes > 1 and mode == "recomputed":
+        text += (f" (the record is made twice: the folder has no room for the {format_bytes(report['cache_bytes'])} "
+                 "temporary file that would keep the first pass's samples)")
+    return text
+
+
 def format_dry_run(report: dict) -> str:
     """The plan of a drive (from :func:`dry_run_summary`) as a short text block (``generate --dry-run``).
 
@@ -276,18 +327,18 @@ def format_dry_run(report: dict) -> str:
     ----------
     See :func:`dry_run_summary`.
     """
-    passes = report["passes"]
     verdict = "fits" if report["fits"] else "does NOT fit; it would be refused"
+    cached = report.get("peak_pass") == "cached"
     return "\n".join([
         f"would write {report['file']} (sidecar {report['sidecar']}); nothing written",
         f"  samples     {report['samples']} at {report['rate_hz']:g} Hz ({report['duration_s']:g} s), "
         f"{report['format']} {report['subtype']}, columns {', '.join(report['columns'])}",
         f"  size        {_size_text(report)} ({report['bytes']} bytes"
-        + ("" if report["bytes_exact"] else ", an upper bound") + f"); with the sidecar {report['needed_bytes']} "
+        + ("" if report["bytes_exact"] else ", an upper bound")
+        + f"); with the sidecar{' and the temporary file' if cached else ''} {report['needed_bytes']} "
         f"bytes; {_free_text(report)}: {verdict}",
         f"  generation  {report['mode']}, {'record' if report['mode'] == 'periodic' else 'frames'} of "
-        f"{report['frame_length_samples']} samples ({report['line_spacing_hz']:.4g} Hz lines), "
-        f"{passes} pass{'es' if passes > 1 else ''} over the record",
+        f"{report['frame_length_samples']} samples ({report['line_spacing_hz']:.4g} Hz lines), {_passes_text(report)}",
     ])
 
 
@@ -312,10 +363,9 @@ def announce(prepared, as_json: bool = False) -> None:
     if as_json:
         click.echo(json.dumps({"event": "plan", **report}), err=True)
         return
-    passes = report["passes"]
     click.echo(f"vibsynth: writing {report['file']}: {report['samples']} samples at {report['rate_hz']:g} Hz "
                f"({report['duration_s']:g} s), {_size_text(report)} ({_free_text(report)}), {report['mode']}, "
-               f"{passes} pass{'es' if passes > 1 else ''} over the record", err=True)
+               f"{_passes_text(report)}", err=True)
 
 
 def _written_head(prepared, written: dict) -> dict:

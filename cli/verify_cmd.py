@@ -29,23 +29,41 @@ def format_compensation(block: dict) -> str:
 RESPONSE_POINTS = 6
 
 
-def drive_response_kurtosis(drive, target):
+def response_pass_samples(drive) -> int:
+    """Samples :func:`drive_response_kurtosis` reads (the steady part of a non-Gaussian drive; 0 for a Gaussian one)."""
+    side = drive.sidecar
+    if side is None:
+        return 0
+    asked = side.options or {}
+    if side.modulation is None and all(asked.get(key) is None for key in ("kurtosis", "skewness", "clip")):
+        return 0
+    start, stop = drive.steady_range
+    return stop - start
+
+
+def drive_response_kurtosis(drive, target, progress=None):
     """Response kurtosis (Q 10, relative displacement) over the band, for a non-Gaussian drive; else None.
 
     A drive is non-Gaussian when its sidecar asks for a kurtosis, skewness or clip level, or records a
     burst envelope. Reported, not judged: it shows whether the drive's peaks survive a resonance.
+    ``progress`` is called with a sample count after each chunk read (one more pass over the file).
     """
-    side = drive.sidecar
-    if side is None:
-        return None
-    asked = side.options or {}
-    if side.modulation is None and all(asked.get(key) is None for key in ("kurtosis", "skewness", "clip")):
+    if not response_pass_samples(drive):
         return None
     from vibsynth.analysis.derive import default_response_grid, response_kurtosis_spectrum
 
     fn = default_response_grid(target.frequency_min_hz, target.frequency_max_hz, drive.rate_hz, RESPONSE_POINTS)
     start, stop = drive.steady_range
-    return response_kurtosis_spectrum(drive.iter_chunks(READ_CHUNK_SAMPLES, start, stop), drive.rate_hz, fn)
+    return response_kurtosis_spectrum(_counted(drive.iter_chunks(READ_CHUNK_SAMPLES, start, stop), progress),
+                                      drive.rate_hz, fn)
+
+
+def _counted(chunks, progress):
+    """The chunks, with ``progress(len(chunk))`` after each (nothing when ``progress`` is None)."""
+    for chunk in chunks:
+        yield chunk
+        if progress is not None:
+            progress(len(chunk))
 
 
 def format_response_kurtosis(response) -> str:
@@ -111,11 +129,15 @@ def format_verification(result, name: str) -> str:
     return "\n".join(lines)
 
 
-def verify_progress(drive, file, quiet: bool, as_json: bool) -> Progress:
+def verify_progress(drive, file, quiet: bool, as_json: bool, passes: int | None = None,
+                    extra_samples: int = 0) -> Progress:
     """Progress over reading a drive file (all passes): a bar on a terminal, lines without, JSON lines with --json.
 
     Shown for files of at least :data:`vibsynth.cli.common.PROGRESS_MIN_SAMPLES` samples, never with --quiet.
-    Counts samples read (the file is read :data:`vibsynth.jobs.VERIFY_PASSES` times).
+    Counts samples read: the file is read ``passes`` times (default
+    :data:`vibsynth.jobs.VERIFY_PASSES`), plus ``extra_samples`` (a pass over
+    the steady part: the response kurtosis of a non-Gaussian drive, the pairs
+    of a multi-channel one).
 
     Examples
     --------
@@ -128,12 +150,14 @@ def verify_progress(drive, file, quiet: bool, as_json: bool) -> Progress:
     """
     from vibsynth.jobs import VERIFY_PASSES
 
+    passes = VERIFY_PASSES if passes is None else int(passes)
     enabled = not quiet and drive.samples >= common.PROGRESS_MIN_SAMPLES
     style = None
     if enabled:
         style = "json" if as_json else ("bar" if common.is_interactive_stderr() else "lines")
-    return Progress(enabled, VERIFY_PASSES * drive.samples, "verifying", style,
-                    f"verifying {file} ({VERIFY_PASSES} passes)")
+    count = passes + (1 if extra_samples else 0)
+    return Progress(enabled, passes * drive.samples + int(extra_samples), "verifying", style,
+                    f"verifying {file} ({count} passes)")
 
 
 #: The verification options, declared once in :mod:`vibsynth.cli.options` (shared with `vibsynth run`).
@@ -199,12 +223,13 @@ def verify(file, profile_spec, level_db, tolerance, grms_tolerance, min_fraction
     target = load_profile(profile_spec, level_db=level_db) if profile_spec else jobs.drive_target(drive)
     criteria = jobs.drive_criteria(drive, parse_tolerance(tolerance), grms_tolerance, min_fraction)
     note(f"verifying {file} ({drive.samples} samples at {drive.rate_hz:g} Hz) against {target.name}")
-    with verify_progress(drive, file, is_quiet(command_quiet), as_json) as progress:
+    with verify_progress(drive, file, is_quiet(command_quiet), as_json,
+                         extra_samples=response_pass_samples(drive)) as progress:
         result = jobs.verify_drive(drive, target, criteria, resolution, dof, progress)
+        response = drive_response_kurtosis(drive, target, progress)  # non-Gaussian drives: one more pass
     if result.segment_message:
         warn(result.segment_message)
     data = jobs.verification_data(result, drive, str(file))
-    response = drive_response_kurtosis(drive, target)
     if response is not None:
         data["response_kurtosis"] = response.to_dict()
     compensation = data.get("compensation")
@@ -252,7 +277,10 @@ def verify_channels(drive, file, profile_spec, level_db, tolerance, grms_toleran
         raise click.UsageError("--level-db shifts a --profile target; give --profile too")
     criteria = jobs.drive_criteria(drive, parse_tolerance(tolerance), grms_tolerance, min_fraction)
     note(f"verifying {file} ({drive.samples} samples at {drive.rate_hz:g} Hz, channels {', '.join(drive.channels)})")
-    result = channel_jobs.verify_channel_drive(drive, criteria, resolution, dof, targets)
+    start, stop = drive.steady_range
+    with verify_progress(drive, file, is_quiet(command_quiet), as_json, jobs.VERIFY_PASSES * len(drive.channels),
+                         stop - start) as progress:
+        result = channel_jobs.verify_channel_drive(drive, criteria, resolution, dof, targets, progress)
     data = {"file": str(file), **result.to_dict()}
     if report_dir:
         paths = channel_jobs.write_channel_report(result, report_dir, Path(file).name)

@@ -83,7 +83,8 @@ def prepare_channel_drive(profile, request, refuse_when_full: bool = True):
     from vibsynth.generate import pipeline
     from vibsynth.generate import plan as synthesis
     from vibsynth.generate.channels import make_channel_plan
-    from vibsynth.jobs import SEED_DERIVATION, PreparedDrive, default_workers, request_seed, sidecar_options, tool_record
+    from vibsynth.jobs import (SEED_DERIVATION, PreparedDrive, default_workers, needs_peak_pass, request_seed,
+                               sidecar_options, tool_record)
 
     _refuse_nongaussian(request)
     file_format = drivefile.drive_format(request.output)
@@ -103,7 +104,8 @@ def prepare_channel_drive(profile, request, refuse_when_full: bool = True):
     drivefile.check_drive_request(request.output, rate_hz=plan.rate_hz, samples=plan.total_samples,
                                   subtype=subtype, channels=plan.channels, check_space=False)
     storage = drivefile.storage_plan(request.output, file_format, subtype, plan.total_samples, ("acceleration",),
-                                     plan.rate_hz, channels=len(plan.channels))
+                                     plan.rate_hz, channels=len(plan.channels),
+                                     peak_pass=needs_peak_pass(file_format, request.full_scale_g, plan.mode))
     if refuse_when_full and not storage["fits"]:
         raise drivefile.space_refusal(request.output, storage)
     seed = request_seed(request)
@@ -308,7 +310,7 @@ def _interpolator(frequencies: np.ndarray, values: np.ndarray):
 
 
 def verify_channel_drive(drive, criteria, resolution_hz: float | None = None, dof: float | None = None,
-                         targets=None) -> ChannelVerification:
+                         targets=None, progress=None) -> ChannelVerification:
     """Verify a multi-channel drive: every channel's ASD and g RMS, and every pair's coherence and phase.
 
     Parameters
@@ -322,6 +324,10 @@ def verify_channel_drive(drive, criteria, resolution_hz: float | None = None, do
         uses the first channel's segment length.
     targets : (tuple, dict), optional
         Channel targets and pair targets (default :func:`channel_targets`).
+    progress : callable, optional
+        Called with a sample count after each chunk read: each channel's
+        :data:`vibsynth.jobs.VERIFY_PASSES` passes over the file, then one pass
+        over its steady part for the pairs.
 
     Returns
     -------
@@ -341,11 +347,18 @@ def verify_channel_drive(drive, criteria, resolution_hz: float | None = None, do
 
     profiles, pairs = channel_targets(drive) if targets is None else targets
     start, stop = drive.steady_range
+    step = progress if progress is not None else (lambda samples: None)
+
+    def counted(chunks):
+        for chunk in chunks:
+            yield chunk
+            step(len(chunk))
+
     results = []
     for name, target in zip(drive.channels, profiles):
         try:
             results.append(verify_record(
-                lambda name=name: drive.iter_chunks(READ_CHUNK_SAMPLES, channel=name), drive.rate_hz, target,
+                lambda name=name: counted(drive.iter_chunks(READ_CHUNK_SAMPLES, channel=name)), drive.rate_hz, target,
                 criteria, n_samples=drive.samples, resolution_hz=resolution_hz, target_dof=dof,
                 skip_start_samples=start, skip_end_samples=drive.samples - stop,
             ))
@@ -354,7 +367,7 @@ def verify_channel_drive(drive, criteria, resolution_hz: float | None = None, do
                              error.location) from None
     nperseg = results[0].estimate.nperseg
     accumulator = CrossSpectralAccumulator(drive.rate_hz, nperseg, len(drive.channels))
-    for chunk in drive.iter_channels(READ_CHUNK_SAMPLES, start, stop):
+    for chunk in counted(drive.iter_channels(READ_CHUNK_SAMPLES, start, stop)):
         accumulator.update(chunk)
     frequencies, matrix, segments, welch = accumulator.result()
     bands = [(p.frequency_min_hz, p.frequency_max_hz) for p in profiles]

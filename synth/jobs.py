@@ -192,8 +192,32 @@ class PreparedDrive:
     @property
     def passes(self) -> int:
         """Passes over the record the write takes (2 when full scale comes from an overlap-add record's peak)."""
-        needs_peak = self.file_format in ("wav", "flac") and self.request.full_scale_g is None
-        return 2 if needs_peak and self.plan.mode == "overlap-add" else 1
+        return 2 if needs_peak_pass(self.file_format, self.request.full_scale_g, self.plan.mode) else 1
+
+    @property
+    def peak_pass(self) -> str | None:
+        """How the second pass gets the record: ``"cached"`` (read back from the peak pass's temporary file),
+        ``"recomputed"`` (made again: the folder lacks the room for the temporary) or None (one pass)."""
+        if self.passes == 1:
+            return None
+        return self.storage.get("peak_pass") or "cached"
+
+
+def needs_peak_pass(file_format: str, full_scale_g: float | None, mode: str) -> bool:
+    """True when writing takes a first pass for the record's peak: .wav/.flac, full scale from the peak, overlap-add.
+
+    (A periodic record is in memory and gives its peak at once.)
+
+    Examples
+    --------
+    >>> needs_peak_pass("flac", None, "overlap-add"), needs_peak_pass("flac", 2.0, "overlap-add")
+    (True, False)
+
+    References
+    ----------
+    Peak normalisation of sampled data (see :func:`vibsynth.io.drivefile.full_scale_from_peak`).
+    """
+    return file_format in ("wav", "flac") and full_scale_g is None and mode == "overlap-add"
 
 
 def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: bool = True) -> PreparedDrive:
@@ -213,8 +237,9 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     -------
     PreparedDrive
         Its ``storage`` holds the file size (bytes, exact or an upper
-        bound), the space needed with the sidecar, the space free and
-        whether it fits (see :func:`vibsynth.io.drivefile.storage_plan`).
+        bound), the space needed with the sidecar (and the peak pass's
+        sample cache, when there is one and the folder holds it), the space
+        free and whether it fits (see :func:`vibsynth.io.drivefile.storage_plan`).
 
     Raises
     ------
@@ -285,7 +310,8 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
         check_space=False,
     )
     storage = drivefile.storage_plan(request.output, file_format, subtype, plan.total_samples, plan.quantities,
-                                     plan.rate_hz)
+                                     plan.rate_hz, peak_pass=needs_peak_pass(file_format, request.full_scale_g,
+                                                                             plan.mode))
     if refuse_when_full and not storage["fits"]:
         raise drivefile.space_refusal(request.output, storage)
     grms_lines = plan.line_variance**0.5
@@ -426,33 +452,78 @@ def tool_record() -> dict:
     return {"name": "vibsynth", "version": __version__, "numpy": np.__version__, "scipy": scipy.__version__}
 
 
-def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
+def write_prepared_drive(prepared: PreparedDrive, progress=None, peak_cache: bool | None = None) -> dict:
     """Synthesize and write a prepared drive (data first, sidecar last, each atomically).
 
     For .wav/.flac without a given full scale, a first pass finds the record's
     peak (the record is deterministic from its seed) so full scale is the peak
     plus :data:`vibsynth.io.drivefile.DEFAULT_HEADROOM`, and ``scale`` is exact.
+    For an overlap-add record that pass also keeps the float64 samples, exactly
+    as the generator gives them, in a hidden temporary file beside the output
+    (:class:`vibsynth.io.samplecache.SampleCache`, 8 bytes x samples x columns:
+    1.47 GB per hour at 51.2 kHz), and the second pass reads them back instead
+    of making the record again: the record is generated once and the file is
+    byte-identical either way.  The temporary is removed when the samples are
+    read (before the file is committed), on any error and on an interrupt.
+    When the folder cannot hold it besides the file (``prepared.peak_pass`` is
+    ``"recomputed"``; see :func:`vibsynth.io.drivefile.storage_plan`), or
+    writing it fails (a warning says so), the second pass recomputes the record.
+
+    .wav/.flac chunks are checked and quantized ahead on
+    :data:`ENCODE_AHEAD_THREADS` threads while libsndfile encodes the previous
+    one in the calling thread.
 
     Parameters
     ----------
     prepared : PreparedDrive
     progress : callable, optional
-        Called with a sample count after each chunk (both passes).
+        Called with a sample count after each chunk (both passes: the counts
+        add up to ``prepared.passes`` x the record's samples).
+    peak_cache : bool, optional
+        Keep the peak pass's samples for the second pass (True) or make the
+        record again (False); None: as planned (``prepared.peak_pass``).
 
     Returns
     -------
     dict
         The sidecar as written (``scale``, ``peak_g``, ...).
 
+    Examples
+    --------
+    >>> import tempfile, pathlib, warnings
+    >>> from vibsynth.profile.files import read_profile
+    >>> out = pathlib.Path(tempfile.mkdtemp()) / "d.flac"
+    >>> request = DriveRequest(str(out), 30.0, 5120.0, seed=1, memory_budget_mb=1.0)
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")
+    ...     prepared = prepare_drive(read_profile("bench-flat"), request)
+    >>> prepared.passes, prepared.peak_pass
+    (2, 'cached')
+    >>> written = write_prepared_drive(prepared)
+    >>> sorted(p.name for p in out.parent.iterdir())
+    ['d.flac', 'd.flac.json']
+
     References
     ----------
-    See :func:`vibsynth.io.drivefile.write_drive`.
+    See :func:`vibsynth.io.drivefile.write_drive`; libsndfile (FLAC, RIFF WAVE encoding).
     """
     plan, synthesizer, request = prepared.plan, prepared.synthesizer, prepared.request
     sidecar = prepared.sidecar
     step = progress if progress is not None else (lambda samples: None)
-    scale = 1.0
-    if prepared.file_format in ("wav", "flac"):
+    if prepared.file_format not in ("wav", "flac"):
+        return drivefile.write_drive(
+            request.output,
+            synthesizer.iter_chunks(CHUNK_SAMPLES),
+            rate_hz=plan.rate_hz,
+            samples=plan.total_samples,
+            quantities=plan.quantities,
+            subtype=prepared.subtype,
+            sidecar=sidecar,
+            progress=step,
+            channels=plan.channels,
+        )
+    cache = None
+    try:
         if request.full_scale_g is not None:
             scale = float(request.full_scale_g)
             sidecar = dataclasses.replace(sidecar, full_scale_from="given")
@@ -460,27 +531,93 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None) -> dict:
             if plan.mode == "periodic":
                 peak = synthesizer.peak_abs()
             else:
-                peak = 0.0
-                columns = slice(None) if plan.channels else 0  # every channel shares the file's full scale
-                for chunk in synthesizer.iter_chunks(CHUNK_SAMPLES):
-                    peak = max(peak, float(np.max(np.abs(chunk[:, columns]))))
-                    step(len(chunk))
+                keep = prepared.peak_pass == "cached" if peak_cache is None else bool(peak_cache)
+                peak, cache = _peak_pass(prepared, step, keep)
             scale = drivefile.full_scale_from_peak(peak)
             sidecar = dataclasses.replace(sidecar, full_scale_from="peak",
                                           full_scale_headroom_fraction=drivefile.DEFAULT_HEADROOM)
-    return drivefile.write_drive(
-        request.output,
-        synthesizer.iter_chunks(CHUNK_SAMPLES),
-        rate_hz=plan.rate_hz,
-        samples=plan.total_samples,
-        quantities=plan.quantities,
-        subtype=prepared.subtype,
-        scale=scale,
-        sidecar=sidecar,
-        progress=step,
-        channels=plan.channels,
-    )
+        source = cache.iter_chunks(CHUNK_SAMPLES) if cache is not None else synthesizer.iter_chunks(CHUNK_SAMPLES)
+        with drivefile.DriveWriter(request.output, rate_hz=plan.rate_hz, samples=plan.total_samples,
+                                   quantities=plan.quantities, subtype=prepared.subtype, scale=scale,
+                                   sidecar=sidecar, channels=plan.channels) as writer:
+            for ready in _encoded_ahead(writer, source):
+                writer.write_prepared(ready)
+                step(ready.count)
+            if cache is not None:  # read to the end: gone before the commit's fsync (its pages are never flushed)
+                cache.discard()
+            return writer.commit()
+    finally:
+        if cache is not None:
+            cache.discard()
 
+
+#: Threads that check and quantize .wav/.flac chunks ahead of the encoder (which runs in the calling thread).
+ENCODE_AHEAD_THREADS = 2
+
+#: Chunks checked and quantized ahead of the encoder at most (bounded memory: a few MB).
+ENCODE_AHEAD_CHUNKS = 4
+
+
+def _encoded_ahead(writer, chunks):
+    """``writer.prepare`` of each chunk, in order, computed on worker threads ahead of the consumer."""
+    from vibsynth.generate._threads import ordered_map
+
+    def positioned():
+        position = 0
+        for chunk in chunks:
+            yield chunk, position
+            position += len(chunk)
+
+    return ordered_map(lambda item: writer.prepare(*item), positioned(), ENCODE_AHEAD_THREADS, ENCODE_AHEAD_CHUNKS)
+
+
+def _peak_pass(prepared: PreparedDrive, step, keep: bool):
+    """The first pass of an overlap-add .wav/.flac record: its peak (g), and its samples cached when ``keep``.
+
+    Returns (peak, cache or None).  A cache that cannot be created or written
+    (disk full) is dropped with a warning and the pass goes on for the peak
+    alone; the caller then makes the record again.
+    """
+    from vibsynth.io.samplecache import SampleCache
+
+    plan, synthesizer = prepared.plan, prepared.synthesizer
+    columns = slice(None) if plan.channels else 0  # every channel shares the file's full scale
+    cache = None
+    if keep:
+        try:
+            cache = SampleCache(prepared.request.output, plan.column_count)
+        except OSError as error:
+            _cache_dropped(error)
+    peak = 0.0
+    try:
+        for chunk in synthesizer.iter_chunks(CHUNK_SAMPLES):
+            peak = max(peak, float(np.max(np.abs(chunk[:, columns]))))
+            if cache is not None:
+                try:
+                    cache.write(chunk)
+                except OSError as error:
+                    cache.discard()
+                    cache = None
+                    _cache_dropped(error)
+            step(len(chunk))
+        if cache is not None:
+            try:
+                cache.close()
+            except OSError as error:  # the last chunks, written in the background, did not fit
+                cache.discard()
+                cache = None
+                _cache_dropped(error)
+    except BaseException:
+        if cache is not None:
+            cache.discard()
+        raise
+    return peak, cache
+
+
+def _cache_dropped(error: OSError) -> None:
+    warnings.warn(f"the peak pass could not keep the samples in a temporary file ({error.strerror or error}); the "
+                  "record is made again for the second pass (same samples, about twice the generation time)",
+                  VibsynthWarning, stacklevel=4)
 
 
 # ====================================================================== verify side

@@ -96,14 +96,14 @@ def _argv(profile_path, output: Path, options, seed: int = 11):
 def _in_process(argv, monkeypatch, chunk: int | None) -> list[int]:
     """Run generate here; return the lengths of the chunks the drive writer received."""
     lengths = []
-    original = drivefile.DriveWriter.write
+    original = drivefile.DriveWriter.prepare  # every chunk passes here (DriveWriter.write calls it too)
 
-    def recording_write(self, chunk_values):
+    def recording_prepare(self, chunk_values, position):
         lengths.append(len(chunk_values))
-        return original(self, chunk_values)
+        return original(self, chunk_values, position)
 
     with monkeypatch.context() as patch:
-        patch.setattr(drivefile.DriveWriter, "write", recording_write)
+        patch.setattr(drivefile.DriveWriter, "prepare", recording_prepare)
         if chunk is not None:
             patch.setattr(drive_job, "CHUNK_SAMPLES", chunk)
         status, _, err = _quiet_main(argv)

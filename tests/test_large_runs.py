@@ -281,3 +281,56 @@ def test_dry_run_of_a_multichannel_profile_bounds_the_file(tmp_path, capsys, suf
                           "--seed", 4, "-q")
     assert status == 0, err
     assert 0 < destination.stat().st_size <= report["bytes"]
+
+
+def _recording_progress(monkeypatch) -> list:
+    """Every Progress made, with the samples its callback received (uncapped), as [length, received] pairs."""
+    made = []
+    original_init, original_call = common.Progress.__init__, common.Progress.__call__
+
+    def init(self, enabled, length, *args, **kwargs):
+        original_init(self, enabled, length, *args, **kwargs)
+        self._record = [int(length), 0]
+        made.append(self._record)
+
+    def call(self, samples):
+        self._record[1] += int(samples)
+        return original_call(self, samples)
+
+    monkeypatch.setattr(common.Progress, "__init__", init)
+    monkeypatch.setattr(common.Progress, "__call__", call)
+    return made
+
+
+def test_verify_of_a_non_gaussian_drive_counts_its_response_pass(tmp_path, profile_path, capsys, small_threshold,
+                                                                 monkeypatch):
+    """A non-Gaussian drive's verification reads the steady part once more (response kurtosis): progress covers it."""
+    path = tmp_path / "k.npy"
+    status, _, err = _run(capsys, "generate", profile_path, "-o", path, "--duration", 30, "--rate", RATE, "--seed", 3,
+                          "--kurtosis", 5, "--ramp", 1, "--quiet")
+    assert status == 0, err
+    made = _recording_progress(monkeypatch)
+    status, out, err = _run(capsys, "verify", path)
+    assert status in (0, 1), err
+    steady = 30 * RATE - 2 * RATE  # 1 s ramps left out
+    assert made == [[2 * 30 * RATE + steady, 2 * 30 * RATE + steady]]  # every sample read is counted, no more
+    progress = _progress_lines(err)
+    assert progress[-1][0] == 100 and "(3 passes)" in err
+    assert "response kurtosis" in out
+
+
+def test_verify_of_a_multichannel_drive_shows_progress(tmp_path, capsys, small_threshold, monkeypatch):
+    example = Path(__file__).parent.parent / "examples" / "three-axis-mount.toml"
+    path = tmp_path / "pod.npy"
+    status, _, err = _run(capsys, "generate", example, "-o", path, "--duration", 10, "--rate", RATE, "--seed", 4,
+                          "--quiet")
+    assert status == 0, err
+    made = _recording_progress(monkeypatch)
+    status, out, err = _run(capsys, "verify", path)
+    assert status in (0, 1), err
+    # three channels read twice each, then the steady part once for the pairs (no ramps here)
+    assert made == [[3 * 2 * 10 * RATE + 10 * RATE] * 2]
+    progress = _progress_lines(err)
+    assert 3 <= len(progress) <= 21 and progress[-1][0] == 100 and "(7 passes)" in err
+    status, out, err = _run(capsys, "verify", path, "--quiet")
+    assert _progress_lines(err) == []

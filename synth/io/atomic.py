@@ -3,7 +3,8 @@
 One scheme for every writer (drive files, sidecars, profiles, report.json,
 verify.json, figures, the PDF): the content is written to a hidden temporary
 file in the destination's folder, named ``.NAME.PID.partial`` (``.NAME.PID.N.partial``
-when that name is taken), flushed to disk, and renamed over the destination
+when that name is taken; a scratch file that is never published, such as the sample cache of a
+drive's peak pass, adds a tag: ``.NAME.PID.TAG.partial``), flushed to disk, and renamed over the destination
 only when complete (POSIX rename(2) is atomic: a reader sees the old file or
 the new one, never a mixture).  An exception removes the temporary file; a
 killed process leaves the destination as it was and at most a ``.partial``
@@ -33,19 +34,28 @@ STALE_PARTIAL_AGE_S = 60.0
 #: Suffix of every temporary file.
 PARTIAL_SUFFIX = ".partial"
 
+#: What a scratch file's tag may be (``partial_path(..., tag=...)``): lower-case words joined by ``-``.
+_TAG = re.compile(r"[a-z]+(?:-[a-z]+)*")
 
-def partial_path(destination) -> Path:
+
+def partial_path(destination, tag: str = "") -> Path:
     """Create (exclusively) and return a fresh temporary file for ``destination``.
 
     Parameters
     ----------
     destination : str or os.PathLike
         The final file.
+    tag : str
+        Lower-case words joined by ``-`` naming a scratch file kept beside the
+        destination's temporary (``.NAME.PID.TAG.partial``); stale ones are
+        removed with the destination's (:func:`remove_stale_partials`).
+        Empty: the destination's own temporary.
 
     Returns
     -------
     pathlib.Path
-        ``.NAME.PID.partial`` (or ``.NAME.PID.N.partial``) beside the destination, created empty.
+        ``.NAME.PID.partial`` (or ``.NAME.PID.N.partial``; with a tag
+        ``.NAME.PID[.N].TAG.partial``) beside the destination, created empty.
 
     Examples
     --------
@@ -61,9 +71,12 @@ def partial_path(destination) -> Path:
     POSIX open(2) with O_CREAT | O_EXCL.
     """
     path = Path(destination)
+    if tag and not _TAG.fullmatch(tag):
+        raise ValueError(f"tag {tag!r} must be lower-case words joined by '-'")
+    label = f".{tag}" if tag else ""
     for attempt in itertools.count():
         extra = f".{attempt}" if attempt else ""
-        candidate = path.with_name(f".{path.name}.{os.getpid()}{extra}{PARTIAL_SUFFIX}")
+        candidate = path.with_name(f".{path.name}.{os.getpid()}{extra}{label}{PARTIAL_SUFFIX}")
         try:
             descriptor = os.open(candidate, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o666)
         except FileExistsError:
@@ -84,7 +97,7 @@ def _process_runs(pid: int) -> bool:
 
 
 def remove_stale_partials(destination, min_age_s: float = STALE_PARTIAL_AGE_S) -> list:
-    """Remove the temporary files a killed writer left for ``destination``.
+    """Remove the temporary files a killed writer left for ``destination`` (its tagged scratch files too).
 
     Parameters
     ----------
@@ -111,7 +124,7 @@ def remove_stale_partials(destination, min_age_s: float = STALE_PARTIAL_AGE_S) -
     path = Path(destination)
     if os.name != "posix":
         return []
-    pattern = re.compile(rf"\.{re.escape(path.name)}\.(\d+)(?:\.\d+)?{re.escape(PARTIAL_SUFFIX)}")
+    pattern = re.compile(rf"\.{re.escape(path.name)}\.(\d+)(?:\.\d+)?(?:\.{_TAG.pattern})?{re.escape(PARTIAL_SUFFIX)}")
     removed = []
     try:
         entries = list(os.scandir(path.parent))

@@ -55,7 +55,7 @@ from typing import Iterator
 import numpy as np
 
 from vibsynth.errors import InputError
-from vibsynth.io import atomic, csvtable, npyarray, wavflac
+from vibsynth.io import atomic, csvtable, npyarray, samplecache, wavflac
 from vibsynth.io.atomic import STALE_PARTIAL_AGE_S
 from vibsynth.io.quantities import COLUMN_NAMES, QUANTITY_UNITS
 from vibsynth.io.sidecar import Sidecar, sidecar_path
@@ -221,7 +221,7 @@ def free_bytes(folder) -> int | None:
 
 
 def storage_plan(path, file_format: str, subtype: str, samples: int, quantities=("acceleration",),
-                 rate_hz: float = 1.0, channels: int = 1) -> dict:
+                 rate_hz: float = 1.0, channels: int = 1, peak_pass: bool = False) -> dict:
     """What writing a drive file will take on disk, and whether its folder has the room.
 
     Parameters
@@ -233,14 +233,26 @@ def storage_plan(path, file_format: str, subtype: str, samples: int, quantities=
     channels : int
         Acceleration columns of a multi-channel drive (each counted as large
         as one channel's file, an upper bound).
+    peak_pass : bool
+        The write makes a first pass for the record's peak (.wav/.flac,
+        full scale from the peak, overlap-add record).  That pass keeps the
+        samples in a temporary file beside the destination
+        (:mod:`vibsynth.io.samplecache`, 8 bytes x samples x columns) when the
+        folder holds it as well as the file and sidecar; otherwise the
+        second pass makes the record again (``peak_pass`` ``"recomputed"``).
 
     Returns
     -------
     dict
         ``bytes`` (the file: exact for .wav/.npy, an upper bound for
         .flac/.csv), ``bytes_exact`` (bool), ``sidecar_allowance_bytes``,
-        ``needed_bytes`` (file + sidecar allowance), ``free_bytes`` (None when
-        the file system will not say) and ``fits`` (True when unknown).
+        ``cache_bytes`` (the peak pass's temporary; 0 without a peak pass),
+        ``peak_pass`` (None without one, ``"cached"`` or ``"recomputed"``),
+        ``needed_bytes`` (file + sidecar allowance, + the cache when
+        ``"cached"``: the most the write holds on disk at once), ``free_bytes``
+        (None when the file system will not say) and ``fits`` (True when
+        unknown).  With unknown free space the cache is planned, and a write
+        that finds the disk full falls back to recomputing.
 
     Examples
     --------
@@ -248,6 +260,9 @@ def storage_plan(path, file_format: str, subtype: str, samples: int, quantities=
     >>> plan = storage_plan(pathlib.Path(tempfile.mkdtemp()) / "d.npy", "npy", "float64", 10)
     >>> plan["bytes"], plan["bytes_exact"], plan["needed_bytes"] - plan["bytes"]
     (208, True, 65536)
+    >>> plan = storage_plan(pathlib.Path(tempfile.mkdtemp()) / "d.flac", "flac", "pcm24", 10, peak_pass=True)
+    >>> plan["cache_bytes"], plan["peak_pass"]
+    (80, 'cached')
 
     References
     ----------
@@ -258,8 +273,15 @@ def storage_plan(path, file_format: str, subtype: str, samples: int, quantities=
         size, exact = channels * size, False
     needed = int(size) + SIDECAR_ALLOWANCE_BYTES
     free = free_bytes(Path(path).parent)
+    cache = samplecache.cache_bytes(samples, max(int(channels), len(tuple(quantities)))) if peak_pass else 0
+    mode = None
+    if peak_pass:
+        mode = "cached" if free is None or needed + cache <= free else "recomputed"
+        if mode == "cached":
+            needed += cache
     return {"bytes": int(size), "bytes_exact": bool(exact), "sidecar_allowance_bytes": SIDECAR_ALLOWANCE_BYTES,
-            "needed_bytes": needed, "free_bytes": free, "fits": free is None or needed <= free}
+            "cache_bytes": cache, "peak_pass": mode, "needed_bytes": needed, "free_bytes": free,
+            "fits": free is None or needed <= free}
 
 
 def space_refusal(path, storage: dict) -> InputError:
@@ -426,6 +448,38 @@ def check_drive_request(path, *, rate_hz: float, samples: int, quantities=("acce
             "samples": count, "scale": scale, "channels": channels}
 
 
+@dataclass(frozen=True)
+class PreparedChunk:
+    """A chunk checked and encoded for one drive file by :meth:`DriveWriter.prepare`, not yet written.
+
+    Attributes
+    ----------
+    position : int
+        Index of its first sample in the file.
+    count : int
+        Samples (rows).
+    peaks : numpy.ndarray or None
+        Largest |value| of acceleration per channel (one entry for a
+        single-channel drive), in g; None for an empty chunk.
+    payload : numpy.ndarray
+        What the format's writer stores (.wav/.flac: normalised samples or
+        integer counts; .csv/.npy: the physical values).
+
+    Examples
+    --------
+    See :meth:`DriveWriter.prepare`.
+
+    References
+    ----------
+    See the module docstring.
+    """
+
+    position: int
+    count: int
+    peaks: np.ndarray | None
+    payload: np.ndarray
+
+
 class DriveWriter:
     """Write one drive file chunk by chunk, then its sidecar, atomically.
 
@@ -536,6 +590,48 @@ class DriveWriter:
 
     def write(self, chunk) -> None:
         """Append samples: physical values, shape (m,) or (m, q) with one column per quantity (or channel)."""
+        self.write_prepared(self.prepare(chunk, self.written))
+
+    def prepare(self, chunk, position: int) -> "PreparedChunk":
+        """Check a chunk that will start at sample ``position`` and encode it for the file; nothing is written.
+
+        The result depends only on the chunk, ``position`` and the writer's
+        format and scale, so chunks may be prepared ahead on other threads
+        (numpy and the encoders release the interpreter lock) and handed to
+        :meth:`write_prepared` in order.  :meth:`write` does both.
+
+        Parameters
+        ----------
+        chunk : array_like
+            Physical values, shape (m,) or (m, q) with one column per quantity (or channel).
+        position : int
+            Samples written before this chunk (for messages).
+
+        Returns
+        -------
+        PreparedChunk
+
+        Raises
+        ------
+        InputError
+            A chunk of the wrong width, a value that is not finite, or (.wav/.flac)
+            beyond full scale.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib, numpy as np
+        >>> path = pathlib.Path(tempfile.mkdtemp()) / "d.flac"
+        >>> with DriveWriter(path, rate_hz=8000.0, samples=2, scale=2.0) as writer:
+        ...     ready = writer.prepare(np.array([1.0, -0.5]), 0)
+        ...     writer.write_prepared(ready)
+        ...     written = writer.commit()
+        >>> ready.count, written["peak_g"]
+        (2, 1.0)
+
+        References
+        ----------
+        See the module docstring.
+        """
         values = np.asarray(chunk, dtype=np.float64)
         if values.ndim == 1:
             values = values[:, None]
@@ -544,22 +640,39 @@ class DriveWriter:
                 f"chunk of shape {np.shape(chunk)} does not match {self.width} column(s)", str(self.path)
             )
         count = values.shape[0]
-        if self.written + count > self.samples:
+        position = int(position)
+        if position + count > self.samples:
             raise InputError(f"more than the announced {self.samples} samples written", str(self.path))
+        peaks = None
         if count:
-            # one pass each for the largest and the smallest value: their magnitudes give the peak, and a
-            # NaN or an infinity anywhere makes one of them non-finite
-            peaks = np.maximum(np.max(values, axis=0), -np.min(values, axis=0))
-            if not np.all(np.isfinite(peaks)):
+            # one pass each for the largest and the smallest value: their magnitudes give the peak(s), and a
+            # NaN or an infinity anywhere makes one of the extremes non-finite
+            extremes = np.maximum(np.max(values, axis=0), -np.min(values, axis=0))
+            if not np.all(np.isfinite(extremes)):
                 bad = int(np.flatnonzero(~np.all(np.isfinite(values), axis=1))[0])
-                raise InputError(f"sample {self.written + bad} is not a finite number", str(self.path))
-            if self.channels:
-                np.maximum(self._channel_peaks, peaks, out=self._channel_peaks)
-                self._peak = float(np.max(self._channel_peaks))
-            else:
-                self._peak = max(self._peak, float(peaks[0]))
-        self._format_writer.write(values, self.written)
-        self.written += count
+                raise InputError(f"sample {position + bad} is not a finite number", str(self.path))
+            peaks = extremes if self.channels else extremes[:1]
+        encode = getattr(self._format_writer, "encode", None)
+        payload = encode(values, position) if encode is not None else values
+        return PreparedChunk(position, count, peaks, payload)
+
+    def write_prepared(self, prepared: "PreparedChunk") -> None:
+        """Append a chunk made by :meth:`prepare` (chunks in the order of their positions)."""
+        if prepared.position != self.written:
+            raise InputError(f"a chunk prepared for sample {prepared.position} came after {self.written} samples",
+                             str(self.path))
+        if self.written + prepared.count > self.samples:
+            raise InputError(f"more than the announced {self.samples} samples written", str(self.path))
+        if prepared.count and self.channels:
+            np.maximum(self._channel_peaks, prepared.peaks, out=self._channel_peaks)
+            self._peak = float(np.max(self._channel_peaks))
+        elif prepared.count:
+            self._peak = max(self._peak, float(prepared.peaks[0]))
+        if hasattr(self._format_writer, "write_encoded"):
+            self._format_writer.write_encoded(prepared.payload)
+        else:
+            self._format_writer.write(prepared.payload, self.written)
+        self.written += prepared.count
 
     def sidecar(self) -> Sidecar:
         """The sidecar as it will be written (the writer's own fields override the caller's)."""

@@ -153,22 +153,44 @@ class AudioWriter:
                 self.where,
             )
 
-    def write(self, values: np.ndarray, written: int) -> None:
-        """Append physical values (g), shape (m, channels); ``written`` samples came before (for messages)."""
+    def encode(self, values: np.ndarray, written: int) -> np.ndarray:
+        """Physical values (g), shape (m, channels), as the samples the file stores; nothing is written.
+
+        ``written`` samples come before these (for messages).  Depends only on
+        its arguments and the writer's format and scale, so chunks may be
+        encoded ahead on other threads and handed to :meth:`write_encoded` in order.
+
+        Returns
+        -------
+        numpy.ndarray
+            float32 (``float``), int16 (``pcm16``) or left-justified int32
+            (``pcm24``), shape (m,) or (m, channels).
+
+        Raises
+        ------
+        InputError
+            A value beyond full scale (never clipped).
+        """
         values = values[:, 0] if self.channels == 1 else np.ascontiguousarray(values)
         with np.errstate(over="ignore"):  # a value beyond full scale is refused just below
             if self.subtype == "float":
                 normalised = (values / self.scale).astype(np.float32)
                 self._refuse(values, normalised, 1.0, written)
-                self._handle.write(normalised)
-                return
+                return normalised
             bits = PCM_BITS[self.subtype]
             counts = np.rint(values * (2.0 ** (bits - 1) / self.scale))
         self._refuse(values, counts / 2.0 ** (bits - 1), (2 ** (bits - 1) - 1) / 2.0 ** (bits - 1), written)
         if bits == 16:
-            self._handle.write(counts.astype(np.int16))
-        else:  # libsndfile stores the top 24 bits of a left-justified int32
-            self._handle.write(counts.astype(np.int32) << 8)
+            return counts.astype(np.int16)
+        return counts.astype(np.int32) << 8  # libsndfile stores the top 24 bits of a left-justified int32
+
+    def write_encoded(self, samples: np.ndarray) -> None:
+        """Append samples made by :meth:`encode` (libsndfile encodes them; the interpreter lock is released)."""
+        self._handle.write(samples)
+
+    def write(self, values: np.ndarray, written: int) -> None:
+        """Append physical values (g), shape (m, channels); ``written`` samples came before (for messages)."""
+        self.write_encoded(self.encode(values, written))
 
     def close(self) -> None:
         """Close the file (idempotent)."""
