@@ -109,6 +109,7 @@ def run_plan(folder: Path, plan_path: Path, workers: int) -> dict:
         "worker_page_faults": faults,
         # CPU the rest of the machine (other processes) used meanwhile, in cores
         "others_cores": (busy - worker_cpu - own) / (done - ready),
+        "client_cpu_s": own,
         "bytes": [(folder / row["file"]).stat().st_size for row in rows],
         "sha256": [row["sha256"] for row in rows],
     }
@@ -176,6 +177,8 @@ def main() -> int:
         cost = task_overhead()
         disk = disk_rate(tmp)
     jobs = len(one["job_s"])
+    # what two workers would give with both CPUs free: each job's CPU grows with contention (memory, caches)
+    capacity = 2 * one["worker_cpu_s"] / two["worker_cpu_s"]
     speedup = one["batch_s"] / two["batch_s"]
     speedup_total = (one["startup_s"] + one["batch_s"]) / (two["startup_s"] + two["batch_s"])
     job_s = statistics.mean(one["job_s"])
@@ -197,6 +200,9 @@ def main() -> int:
          f"{two['worker_page_faults'] / jobs:.0f}", "minor faults in the workers", "(context)"),
         ("  CPU taken by other processes", f"{one['others_cores']:.2f} / {two['others_cores']:.2f}",
          "cores, during 1 / 2 workers", "(context)"),
+        ("  CPU of this process (client, scheduler)", f"{one['client_cpu_s']:.2f} / {two['client_cpu_s']:.2f} s",
+         "during 1 / 2 workers", "(context)"),
+        ("  speedup from CPU per job", f"{capacity:.2f} x", "2 x CPU/job(1) / CPU/job(2)", "(context)"),
         ("Dask round trip, one empty task", f"{cost['round_trip_s'] * 1e3:.2f} ms", "", ""),
         ("Dask cost per task, 400 spread", f"{overhead * 1e3:.3f} ms", f"{overhead / job_s * 100:.3f} % of a job", ""),
         ("disk write with fsync", f"{disk / 1e6:.0f} MB/s", "", ""),
@@ -221,7 +227,7 @@ def main() -> int:
         print(f"{name:<{width}}{value:<14}{note:<32}{goal}")
     print(json.dumps({
         "rate_hz": rate, "one_worker": one, "two_workers": two, "speedup": speedup, "speedups": ratios,
-        "speedup_with_startup": speedup_total,
+        "speedup_with_startup": speedup_total, "speedup_from_cpu_per_job": capacity,
         "workers_busy": busy, "job_time_ratio_2_vs_1": slowdown, "dask": cost, "disk_bytes_per_s": disk, "projection": paper,
         "limits_workers": limits, "cpus": batches.default_worker_count(),
         "load_average_before": load_before, "load_average_after": os.getloadavg()[0],
