@@ -383,7 +383,6 @@ def terminate_as_interrupt():
         signal.signal(signal.SIGTERM, previous)
 
 
-
 @contextlib.contextmanager
 def record_mapper(scheduler: str | None, workers: int | None, records: int):
     """Where a Monte-Carlo makes its records: a Dask mapper with --workers/--scheduler, else None (this process).

@@ -123,7 +123,7 @@ def severity(profile, duration, drive_path, rate, scale, b, q, fn_min, fn_max, p
 
 
 #: Above this many sample x natural-frequency steps (records x samples x fn), a runtime warning is printed
-#: (about 0.2 us each on one core of a 2024 laptop-class machine: several minutes).
+#: (measured on a 2-core test machine: about 0.2 us each, so several minutes).
 SCATTER_WARN_STEPS = 2_000_000_000
 
 

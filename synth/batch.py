@@ -744,15 +744,28 @@ def run_task(task: BatchTask) -> dict:
 
 
 # ====================================================================== running on Dask
-#: Dask configuration while a local cluster starts its workers.  Dask sets, before it spawns a
-#: worker process, OMP_NUM_THREADS = MKL_NUM_THREADS = OPENBLAS_NUM_THREADS = 1 (kept: one job per
-#: worker, single-threaded) and MALLOC_TRIM_THRESHOLD_ = 65536 (removed here).  Setting any glibc
-#: malloc threshold turns off its dynamic mmap threshold, so every array above 128 KiB is mapped
-#: afresh and its pages faulted in and zeroed each time: a 60 s 51.2 kHz drive job took 15 x the
-#: page faults (213 000 against 13 000) and twice the CPU time (0.9 s against 0.45 s, half of it in
-#: the kernel), and two workers faulting at once contend for the memory bandwidth.  Without it a
-#: worker's allocator behaves as in a `vibsynth generate` process (the samples do not depend on it).
-LOCAL_WORKER_CONFIG = {"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}
+#: Dask configuration while a local cluster starts (the scheduler, the nannies and the worker
+#: processes read it then).  Measured on a 2-core machine with 60 s, 51.2 kHz drive jobs:
+#:
+#: - Dask sets, before it spawns a worker process, OMP_NUM_THREADS = MKL_NUM_THREADS =
+#:   OPENBLAS_NUM_THREADS = 1 (kept: one job per worker, single-threaded) and
+#:   MALLOC_TRIM_THRESHOLD_ = 65536 (removed here).  Setting any glibc malloc threshold turns off
+#:   its dynamic mmap threshold, so every array above 128 KiB was mapped afresh and its pages
+#:   faulted in and zeroed each time: 15 x the page faults (220 000 against 15 000 per job) and
+#:   2.3 x the CPU time (0.88 s against 0.38 s per job, half of it in the kernel).  Without it a
+#:   worker's allocator behaves as in a `vibsynth generate` process (the samples do not depend on it).
+#: - Diagnostics for the dashboard, which a batch does not show: the statistical profiler that
+#:   samples each worker's task thread every 10 ms (off), the event-loop watchdog every 20 ms, the
+#:   memory monitor every 100 ms and the system monitor every 500 ms (500 ms, 500 ms, 2 s).  An
+#:   idle cluster of two workers used 0.4 CPU-seconds in 5 s with Dask's defaults, 0.08 with these:
+#:   on a 2-core machine the difference is taken from the jobs.
+LOCAL_WORKER_CONFIG = {
+    "distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None,
+    "distributed.worker.profile.enabled": False,
+    "distributed.admin.tick.interval": "500ms",
+    "distributed.worker.memory.monitor-interval": "500ms",
+    "distributed.admin.system-monitor.interval": "2s",
+}
 
 
 def default_worker_count() -> int:

@@ -397,10 +397,13 @@ def test_peaks_monte_carlo_on_two_workers_gives_the_numbers_of_one(capsys):
 
 
 def _worker_threads_and_allocator() -> dict:
+    import dask
+
     import vibsynth.analysis.welch as welch
 
     return {"omp": os.environ.get("OMP_NUM_THREADS"), "openblas": os.environ.get("OPENBLAS_NUM_THREADS"),
-            "malloc_trim": os.environ.get("MALLOC_TRIM_THRESHOLD_"), "fft_threads": welch._fft_workers()}
+            "malloc_trim": os.environ.get("MALLOC_TRIM_THRESHOLD_"), "fft_threads": welch._fft_workers(),
+            "profiler": dask.config.get("distributed.worker.profile.enabled")}
 
 
 def test_local_workers_run_each_job_single_threaded_with_the_default_allocator(tmp_path, monkeypatch):
@@ -415,4 +418,4 @@ def test_local_workers_run_each_job_single_threaded_with_the_default_allocator(t
     assert [task.request.workers for task in prepared.tasks] == [1, 1]  # no frame threads inside a job
     with batches.dask_client(workers=1) as client:
         (seen,) = client.run(_worker_threads_and_allocator).values()
-    assert seen == {"omp": "1", "openblas": "1", "malloc_trim": None, "fft_threads": 1}
+    assert seen == {"omp": "1", "openblas": "1", "malloc_trim": None, "fft_threads": 1, "profiler": False}

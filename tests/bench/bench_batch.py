@@ -173,6 +173,8 @@ def main() -> int:
             assert one["sha256"] == two["sha256"], "the files differ with the number of workers"
             pairs.append((one["batch_s"] / two["batch_s"], one, two))
         ratios = [pair[0] for pair in pairs]
+        others = [(pair[1]["others_cores"], pair[2]["others_cores"]) for pair in pairs]
+        capacities = [2 * pair[1]["worker_cpu_s"] / pair[2]["worker_cpu_s"] for pair in pairs]
         _, one, two = sorted(pairs, key=lambda pair: pair[0])[len(pairs) // 2]
         cost = task_overhead()
         disk = disk_rate(tmp)
@@ -191,6 +193,9 @@ def main() -> int:
         ("8 jobs x 60 s, 2 workers", f"{two['batch_s']:.2f} s", f"start-up {two['startup_s']:.2f} s", ""),
         ("speedup 2 vs 1 workers", f"{speedup:.2f} x", f"{speedup_total:.2f} x with start-up", ">= 1.6"),
         ("  every pair (median above)", " ".join(f"{r:.2f}" for r in ratios), "", "(context)"),
+        ("    CPU others took, per pair", " ".join(f"{a:.1f}/{b:.1f}" for a, b in others), "cores, 1 / 2 workers",
+         "(context)"),
+        ("    speedup from CPU per job, per pair", " ".join(f"{c:.2f}" for c in capacities), "", "(context)"),
         ("  workers kept busy (sum job / wall)", f"{busy[0]:.2f} / {busy[1]:.2f}", "1 worker / 2 workers", "(context)"),
         ("  one job's time, 2 vs 1 workers", f"{slowdown:.2f} x", "CPU shared: > 1 under load", "(context)"),
         ("one job (generate + verify)", f"{job_s:.3f} s", f"{per_job_bytes / 1e6:.2f} MB .flac", ""),
@@ -227,6 +232,7 @@ def main() -> int:
         print(f"{name:<{width}}{value:<14}{note:<32}{goal}")
     print(json.dumps({
         "rate_hz": rate, "one_worker": one, "two_workers": two, "speedup": speedup, "speedups": ratios,
+        "others_cores_per_pair": others, "speedups_from_cpu_per_job": capacities,
         "speedup_with_startup": speedup_total, "speedup_from_cpu_per_job": capacity,
         "workers_busy": busy, "job_time_ratio_2_vs_1": slowdown, "dask": cost, "disk_bytes_per_s": disk, "projection": paper,
         "limits_workers": limits, "cpus": batches.default_worker_count(),
