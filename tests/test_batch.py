@@ -412,10 +412,12 @@ def test_local_workers_run_each_job_single_threaded_with_the_default_allocator(t
     Reference: glibc mallopt(3): setting M_TRIM_THRESHOLD (MALLOC_TRIM_THRESHOLD_) disables the dynamic
     adjustment of the mmap threshold, so large arrays are mapped and faulted in afresh each time.
     """
-    monkeypatch.delenv("MALLOC_TRIM_THRESHOLD_", raising=False)  # another cluster in this process may have set it
+    # what a cluster started with Dask's defaults leaves in the environment of the process that started it
+    monkeypatch.setenv("MALLOC_TRIM_THRESHOLD_", "65536")
     plan = batches.parse_plan('[[jobs]]\nprofile = "bench-flat"\nduration_s = 2\nrate_hz = 5120\nseeds = [1, 2]\n')
     prepared = batches.prepare_batch(plan, tmp_path / "out")
     assert [task.request.workers for task in prepared.tasks] == [1, 1]  # no frame threads inside a job
     with batches.dask_client(workers=1) as client:
         (seen,) = client.run(_worker_threads_and_allocator).values()
     assert seen == {"omp": "1", "openblas": "1", "malloc_trim": None, "fft_threads": 1, "profiler": False}
+    assert os.environ["MALLOC_TRIM_THRESHOLD_"] == "65536"  # this process's environment is put back

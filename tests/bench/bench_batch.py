@@ -227,9 +227,10 @@ def main() -> int:
     table.append(("scaling stops (scheduler)", f"~{limits['scheduler_workers']:.0f} workers", "job time / task cost", ""))
     table.append(("scaling stops (disk)", f"~{limits['disk_workers']:.0f} workers", "disk rate x job time / file", ""))
     width = max(len(row[0]) for row in table) + 2
-    print(f"{'measure':<{width}}{'value':<14}{'':<32}goal")
+    value_width = max(14, max(len(row[1]) for row in table) + 2)
+    print(f"{'measure':<{width}}{'value':<{value_width}}{'':<32}goal")
     for name, value, note, goal in table:
-        print(f"{name:<{width}}{value:<14}{note:<32}{goal}")
+        print(f"{name:<{width}}{value:<{value_width}}{note:<32}{goal}")
     print(json.dumps({
         "rate_hz": rate, "one_worker": one, "two_workers": two, "speedup": speedup, "speedups": ratios,
         "others_cores_per_pair": others, "speedups_from_cpu_per_job": capacities,
