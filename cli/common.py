@@ -405,3 +405,22 @@ def terminate_as_interrupt():
     finally:
         signal.signal(signal.SIGTERM, previous)
 
+
+@contextlib.contextmanager
+def record_mapper(scheduler: str | None, workers: int | None, records: int):
+    """Where a Monte-Carlo makes its records: a Dask mapper with --workers/--scheduler, else None (this process).
+
+    Blocks of about ``records / (4 x workers)`` records per task, so each worker gets several
+    tasks (balance) and each task does enough work to hide Dask's cost per task.  Without
+    Dask installed, one :class:`~vibsynth.errors.InputError` line says what to install.
+    """
+    if (workers is None and not scheduler) or not records:
+        yield None
+        return
+    from vibsynth import batch as batches
+
+    with batches.dask_client(scheduler, workers) as client:
+        count = batches.worker_count(client)
+        mapper = batches.dask_mapper(client, max(1, records // (4 * count)))
+        note(f"Monte-Carlo on Dask, {count} workers, {mapper.block_records} record(s) per task")
+        yield mapper

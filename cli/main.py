@@ -53,6 +53,8 @@ OPTION_NAMES = {
     "rate": "--rate",
     "rate_hz": "--rate",
     "records": "--records",
+    "record_duration_s": "--record-duration",
+    "record_rate_hz": "--record-rate",
     "report_dir": "--report",
     "resolution": "--resolution",
     "resolution_hz": "--resolution",

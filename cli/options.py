@@ -153,6 +153,13 @@ VERIFY_OPTIONS = (tolerance, grms_tolerance, min_fraction, welch_resolution, dof
 records = SharedOption("--records", type=click.IntRange(min=0), default=DEFAULT_PEAK_RECORDS, show_default=True,
                        metavar="N", help="Monte-Carlo records per row (0: theory only).")
 
+# ------------------------------------------------------------------ Monte-Carlo records on Dask (peaks, severity)
+workers = SharedOption("--workers", type=click.IntRange(min=1), default=None, metavar="N",
+                       help="Make the Monte-Carlo records on a local Dask cluster of N worker processes (the numbers "
+                            "are the same as in one process). Needs pip install 'vibsynth[cluster]'.")
+scheduler = SharedOption("--scheduler", default=None, metavar="ADDRESS",
+                         help="Make the Monte-Carlo records on a running Dask scheduler (tcp://HOST:PORT).")
+
 # ------------------------------------------------------------------ durability pages (run, verify --report, fit)
 severity = SharedOption(
     "--severity", is_flag=True,

@@ -2,14 +2,14 @@
 
 from __future__ import annotations
 
-import contextlib
 import json
 
 import click
 
 from vibsynth._checks import RATE_MARGIN_FACTOR, default_rate_hz
 from vibsynth.cli import options
-from vibsynth.cli.common import Progress, is_interactive_stderr, is_quiet, json_safe, load_profile, note, warn
+from vibsynth.cli.common import (Progress, is_interactive_stderr, is_quiet, json_safe, load_profile, note,
+                                 record_mapper, warn)
 
 #: Above this many samples to synthesize in the Monte-Carlo, a runtime warning is printed.
 MC_WARN_SAMPLES = 200_000_000
@@ -113,11 +113,8 @@ def format_report(report) -> str:
 @options.amplitude.but(help="Line amplitudes of the Monte-Carlo records, as for `vibsynth generate`.")
 @options.grms
 @options.level_db
-@click.option("--workers", type=click.IntRange(min=1), default=None, metavar="N",
-              help="Make the Monte-Carlo records on a local Dask cluster of N worker processes (the numbers are the "
-                   "same as in one process). Needs pip install 'vibsynth[cluster]'.")
-@click.option("--scheduler", default=None, metavar="ADDRESS",
-              help="Make the Monte-Carlo records on a running Dask scheduler (tcp://HOST:PORT).")
+@options.workers
+@options.scheduler
 @options.json_output
 @options.quiet.but(help="No table and no progress bar (warnings and errors still show; --json still prints).")
 def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, amplitude, grms, level_db, workers,
@@ -162,15 +159,7 @@ def peaks(profile, duration, rate, kurtosis, skewness, clip, records, seed, ampl
              f"{per_record / 1e6:.3g} million); this can take many minutes; lower --records or --rate "
              f"(at least {RATE_MARGIN_FACTOR:g} x {target.frequency_max_hz:g} Hz) to shorten it")
     show = is_interactive_stderr() and not as_json and not quiet and total > 0
-    with contextlib.ExitStack() as stack:
-        mapper = None
-        if (workers is not None or scheduler) and records:
-            from vibsynth import batch as batches
-
-            client = stack.enter_context(batches.dask_client(scheduler, workers))
-            mapper = batches.dask_mapper(client, max(1, records // (4 * batches.worker_count(client))))
-            note(f"Monte-Carlo on Dask, {batches.worker_count(client)} workers, {mapper.block_records} record(s) "
-                 "per task")
+    with record_mapper(scheduler, workers, records) as mapper:
         with Progress(show, total, "Monte-Carlo") as progress:
             report = peak_stats.peak_report(target, duration, rate_hz, transform=transform, records=records,
                                             seed=seed, amplitude=amplitude, progress=progress, mapper=mapper)

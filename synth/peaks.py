@@ -84,9 +84,9 @@ from vibsynth.analysis.extremes import (
     davenport_largest_peak_std_sigma,
 )
 from vibsynth.generate.design import make_nongaussian_plan
-from vibsynth.generate.pipeline import Synthesizer
 from vibsynth.generate.plan import make_plan
 from vibsynth.generate.seeds import root_seed_sequence, seed_entropy
+from vibsynth.montecarlo import map_records, record_synthesizer
 from vibsynth.profile.asd import AsdProfile
 from vibsynth.transforms.choice import gaussian_level, transform_record
 
@@ -397,10 +397,9 @@ class MonteCarloPeaks:
         }
 
 
-def _record_statistics(plan, entropy, index: int, thresholds, step=None) -> tuple:
+def _record_statistics(plan, entropy, thresholds, step, index: int) -> tuple:
     """Peak, power sums and exceedance counts of record ``index`` (spawn key ``(index,)``)."""
-    record_seed = np.random.SeedSequence(entropy, spawn_key=(index,))
-    synthesizer = Synthesizer(plan, record_seed)
+    synthesizer = record_synthesizer(plan, entropy, index)
     counts = np.zeros(len(thresholds), dtype=np.int64)
     peak, s1, s2, s3, s4, n = 0.0, 0.0, 0.0, 0.0, 0.0, 0
     for chunk in synthesizer.iter_chunks(_CHUNK_SAMPLES):
@@ -422,17 +421,13 @@ def _record_statistics(plan, entropy, index: int, thresholds, step=None) -> tupl
     return peak, s1, s2, s3, s4, n, counts
 
 
-def _record_block(plan, entropy, thresholds, indices) -> list:
-    """:func:`_record_statistics` of several records (one task of a parallel Monte-Carlo)."""
-    return [_record_statistics(plan, entropy, index, thresholds) for index in indices]
-
-
 def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, design=None,
                       mapper=None) -> MonteCarloPeaks:
     """Synthesize N records of a plan and count their peaks and exceedances.
 
     Record ``i`` is made from the seed sequence ``SeedSequence(seed, spawn_key=(i,))``
-    by :class:`vibsynth.generate.pipeline.Synthesizer`, exactly as a drive file is.
+    by :class:`vibsynth.generate.pipeline.Synthesizer`, exactly as a drive file is
+    (the Monte-Carlo engine :func:`vibsynth.montecarlo.map_records`).
     Each record's figures depend only on ``i``, so the records may be made
     anywhere (``mapper``) with the same result, number for number.
 
@@ -479,19 +474,16 @@ def monte_carlo_peaks(plan, records: int, seed, rms_g: float, progress=None, des
     entropy = seed_entropy(root_seed_sequence(seed))
     step = progress if progress is not None else (lambda samples: None)
     thresholds = np.asarray(K_SIGMA_LEVELS) * float(rms_g) * (1.0 + _LEVEL_SLACK)
-    if mapper is None:
-        results = (_record_statistics(plan, entropy, index, thresholds, step) for index in range(int(records)))
-    else:
-        size = max(1, int(getattr(mapper, "block_records", 1)))
-        blocks = [range(start, min(start + size, int(records))) for start in range(0, int(records), size)]
+    inline = mapper is None  # progress per chunk here; per record when the records are made elsewhere
+    function = functools.partial(_record_statistics, plan, entropy, thresholds, step if inline else None)
 
-        def mapped():
-            for block in mapper(functools.partial(_record_block, plan, entropy, thresholds), blocks):
-                for result in block:
-                    step(result[5])
-                    yield result
+    def counted():
+        for result in map_records(function, int(records), mapper):
+            if not inline:
+                step(result[5])
+            yield result
 
-        results = mapped()
+    results = counted()
     peaks, crests, rms, skews, kurts = [], [], [], [], []
     counts = np.zeros(len(K_SIGMA_LEVELS), dtype=np.int64)
     total = 0

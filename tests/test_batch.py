@@ -394,3 +394,30 @@ def test_peaks_monte_carlo_on_two_workers_gives_the_numbers_of_one(capsys):
     assert [m["records"] for m in monte_carlo] == [6, 6]
     # the records are real: the non-Gaussian row's mean kurtosis is above the Gaussian's (3, Pearson)
     assert monte_carlo[1]["kurtosis_mean"] > monte_carlo[0]["kurtosis_mean"] + 0.5
+
+
+def _worker_threads_and_allocator() -> dict:
+    import dask
+
+    import vibsynth.analysis.welch as welch
+
+    return {"omp": os.environ.get("OMP_NUM_THREADS"), "openblas": os.environ.get("OPENBLAS_NUM_THREADS"),
+            "malloc_trim": os.environ.get("MALLOC_TRIM_THRESHOLD_"), "fft_threads": welch._fft_workers(),
+            "profiler": dask.config.get("distributed.worker.profile.enabled")}
+
+
+def test_local_workers_run_each_job_single_threaded_with_the_default_allocator(tmp_path, monkeypatch):
+    """One thread per job in a worker (frames, BLAS, FFT); glibc's dynamic mmap threshold left on.
+
+    Reference: glibc mallopt(3): setting M_TRIM_THRESHOLD (MALLOC_TRIM_THRESHOLD_) disables the dynamic
+    adjustment of the mmap threshold, so large arrays are mapped and faulted in afresh each time.
+    """
+    # what a cluster started with Dask's defaults leaves in the environment of the process that started it
+    monkeypatch.setenv("MALLOC_TRIM_THRESHOLD_", "65536")
+    plan = batches.parse_plan('[[jobs]]\nprofile = "bench-flat"\nduration_s = 2\nrate_hz = 5120\nseeds = [1, 2]\n')
+    prepared = batches.prepare_batch(plan, tmp_path / "out")
+    assert [task.request.workers for task in prepared.tasks] == [1, 1]  # no frame threads inside a job
+    with batches.dask_client(workers=1) as client:
+        (seen,) = client.run(_worker_threads_and_allocator).values()
+    assert seen == {"omp": "1", "openblas": "1", "malloc_trim": None, "fft_threads": 1, "profiler": False}
+    assert os.environ["MALLOC_TRIM_THRESHOLD_"] == "65536"  # this process's environment is put back

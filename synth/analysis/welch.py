@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import os
 from dataclasses import dataclass
 
 import numpy as np
@@ -59,8 +60,20 @@ DEFAULT_TARGET_DOF = 120.0
 _BLOCK_SAMPLES = 1 << 19
 
 # Number of FFT worker threads (the library stays on CPU; two is what a shared
-# machine can always give).
+# machine can always give), or one in a process asked to run single-threaded
+# (OMP_NUM_THREADS=1, as Dask sets in its worker processes, which run one job per
+# core).  The estimate does not depend on it: each segment is transformed whole by
+# one thread.
 _FFT_WORKERS = 2
+
+
+def _fft_workers() -> int:
+    """FFT threads: :data:`_FFT_WORKERS`, at most OMP_NUM_THREADS when that is a positive integer."""
+    try:
+        limit = int(os.environ.get("OMP_NUM_THREADS", ""))
+    except ValueError:
+        return _FFT_WORKERS
+    return max(1, min(_FFT_WORKERS, limit))
 
 
 def _check_count(value: int, name: str, minimum: int) -> int:
@@ -345,7 +358,7 @@ class WelchAccumulator:
             b = buf[: seg.shape[0]]
             np.subtract(seg, seg.mean(axis=1, keepdims=True), out=b)  # detrend='constant'
             b *= w
-            spec = scipy.fft.rfft(b, axis=1, workers=_FFT_WORKERS, overwrite_x=True)
+            spec = scipy.fft.rfft(b, axis=1, workers=_fft_workers(), overwrite_x=True)
             pairs = spec.view(np.float64).reshape(spec.shape[0], spec.shape[1], 2)
             self._power_sum += np.einsum("ijk,ijk->j", pairs, pairs)
         self._segments += count

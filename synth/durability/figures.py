@@ -79,7 +79,7 @@ def _legend(ax) -> None:
 
 
 def write_severity_figures(folder, profile_result, drive_result=None, *, drive_fds_scaled=None,
-                           ers_over_drive_duration_g=None, label: str = "profile") -> list:
+                           ers_over_drive_duration_g=None, label: str = "profile", scatter=None) -> list:
     """Write ``fds.png`` and ``ers.png`` into a folder.
 
     Parameters
@@ -96,6 +96,10 @@ def write_severity_figures(folder, profile_result, drive_result=None, *, drive_f
         The specification's ERS over the drive's duration, g (a dashed line).
     label : str
         Name of the specification in the legends.
+    scatter : vibsynth.scatter.SeverityScatter, optional
+        Synthesized records: their 5-95 % band (filled), min-max band (lighter)
+        and mean, on both figures, with the expected largest response in one
+        record (Davenport) on the ERS.
 
     Returns
     -------
@@ -131,6 +135,12 @@ def write_severity_figures(folder, profile_result, drive_result=None, *, drive_f
                 label=f"drive: rainflow + Miner{note}")
         reference = np.interp(np.log(drive_result.fn_hz), np.log(r.fn_hz), r.fds_narrowband)
         lower.plot(drive_result.fn_hz, values / reference, color=DRIVE, linewidth=0.8, marker="o", markersize=3.5)
+    if scatter is not None:
+        _scatter_band(ax, scatter.fn_hz, scatter.fds_summary(), f"{scatter.records} records",
+                      f", scaled from {scatter.record_duration_s:g} s" if scatter.record_duration_s != r.duration_s
+                      else "")
+        _scatter_band(lower, scatter.fn_hz, {key: value / r.fds_narrowband for key, value in
+                                             scatter.fds_summary().items()}, None, "")
     lower.set_ylabel("over narrow band", color=INK)
     top = max(2.0, float(np.nanmax(lower.get_ylim())))
     lower.set_ylim(0.0, min(top, 4.0))
@@ -147,10 +157,29 @@ def write_severity_figures(folder, profile_result, drive_result=None, *, drive_f
     if drive_result is not None:
         ax.plot(drive_result.fn_hz, drive_result.ers_g, color=DRIVE, linewidth=0, marker="o", markersize=3.5,
                 label="drive: actual largest")
+    if scatter is not None:
+        _scatter_band(ax, scatter.fn_hz, scatter.ers_summary(), f"{scatter.records} records", "", largest=True)
+        ax.plot(scatter.fn_hz, scatter.expected_ers_g, color=EXTRA, linewidth=1.0, linestyle="--",
+                label=f"expected largest |z| in {scatter.record_duration_s:g} s (Davenport)")
     _legend(ax)
     written.append(folder / "ers.png")
     figure.savefig(written[-1], facecolor=PAPER)
     return written
+
+
+def _scatter_band(ax, fn_hz, summary: dict, label, note: str, largest: bool = False) -> None:
+    """The records' min-max band (light), 5-95 % band and mean over natural frequency."""
+    if label is None:
+        ax.fill_between(fn_hz, summary["min"], summary["max"], color=DRIVE, alpha=0.10, linewidth=0)
+        ax.fill_between(fn_hz, summary["p05"], summary["p95"], color=DRIVE, alpha=0.22, linewidth=0)
+        ax.plot(fn_hz, summary["mean"], color=DRIVE, linewidth=1.0)
+        return
+    what = "actual largest" if largest else "rainflow + Miner"
+    ax.fill_between(fn_hz, summary["min"], summary["max"], color=DRIVE, alpha=0.10, linewidth=0,
+                    label=f"{label}: min-max")
+    ax.fill_between(fn_hz, summary["p05"], summary["p95"], color=DRIVE, alpha=0.22, linewidth=0,
+                    label=f"{label}: 5-95 %")
+    ax.plot(fn_hz, summary["mean"], color=DRIVE, linewidth=1.0, label=f"{label}: mean, {what}{note}")
 
 
 def write_equivalence_figure(path, result) -> Path:

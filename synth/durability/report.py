@@ -31,8 +31,8 @@ DRIVE_FN_FRACTION = 0.1
 
 
 def severity_report(profile, duration_s: float, *, drive_path=None, report_dir=None, fn_hz=None,
-                    q: float = DEFAULT_Q, b: float = DEFAULT_B, rate_hz=None, scale=None) -> dict:
-    """FDS and ERS of a profile, and of a drive file when given, as plain data (and figures).
+                    q: float = DEFAULT_Q, b: float = DEFAULT_B, rate_hz=None, scale=None, scatter=None) -> dict:
+    """FDS and ERS of a profile, of a drive file and of synthesized records when given, as plain data (and figures).
 
     Parameters
     ----------
@@ -52,6 +52,10 @@ def severity_report(profile, duration_s: float, *, drive_path=None, report_dir=N
         Amplification and Basquin exponent (defaults 10 and 8, common practice, no source).
     rate_hz, scale : float, optional
         For drive files that cannot tell their rate or full scale.
+    scatter : vibsynth.scatter.SeverityScatter, optional
+        FDS/ERS of synthesized records (:func:`vibsynth.scatter.severity_scatter`
+        over the same ``fn_hz``, ``q``, ``b`` and ``duration_s``): their keys
+        join the data and their scatter band the figures.
 
     Returns
     -------
@@ -60,6 +64,8 @@ def severity_report(profile, duration_s: float, *, drive_path=None, report_dir=N
         drive, ``fds_drive`` (scaled to ``duration_s``; NaN above 0.1 x rate),
         ``fds_drive_unscaled``, ``fds_drive_to_narrowband``, ``ers_drive_g``,
         ``ers_g_over_drive_duration``, ``drive_duration_s``, ``drive_rate_hz``;
+        with ``scatter``, the keys of :meth:`vibsynth.scatter.SeverityScatter.to_dict`
+        (``records``, ``fds_records_mean``, ``ers_records_mean_g``, ...);
         ``figures`` (paths) with ``report_dir``.
 
     Warns
@@ -117,6 +123,12 @@ def severity_report(profile, duration_s: float, *, drive_path=None, report_dir=N
             "ers_drive_g": ers_drive.tolist(),
             "ers_g_over_drive_duration": short.ers_g.tolist(),
         })
+    if scatter is not None:
+        if scatter.fn_hz.shape != fn.shape or not np.array_equal(scatter.fn_hz, fn) or scatter.q != spec.q \
+                or scatter.b != spec.b or scatter.duration_s != spec.duration_s:
+            raise InputError("scatter must be computed over the same natural frequencies, q, b and duration",
+                             location="scatter")
+        data.update(scatter.to_dict(spec.fds_narrowband, spec.fds_dirlik))
     if report_dir is not None:
         from vibsynth.durability.figures import write_severity_figures
 
@@ -127,7 +139,8 @@ def severity_report(profile, duration_s: float, *, drive_path=None, report_dir=N
         written = write_severity_figures(
             folder, spec, drive, label=profile.name,
             drive_fds_scaled=None if drive is None else drive.fds * data["drive_damage_scale"],
-            ers_over_drive_duration_g=None if drive is None else np.asarray(data["ers_g_over_drive_duration"]))
+            ers_over_drive_duration_g=None if drive is None else np.asarray(data["ers_g_over_drive_duration"]),
+            scatter=scatter)
         data["figures"] = [str(p) for p in written]
     return data
 
