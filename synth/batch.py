@@ -38,8 +38,9 @@ profile and plan; a drive whose sidecar records something else is refused
 being written and is made again.  Every file is written atomically, so a
 killed batch loses only the tasks in flight.
 
-The same engine makes the Monte-Carlo records of ``vibsynth peaks``
-(:class:`dask_mapper`, passed as ``mapper`` to :func:`vibsynth.peaks.peak_report`).
+The same engine makes the Monte-Carlo records of ``vibsynth peaks`` and
+``vibsynth severity --records`` (:class:`dask_mapper`, passed as ``mapper`` to
+:func:`vibsynth.peaks.peak_report` and :func:`vibsynth.scatter.severity_scatter`).
 
 Workers: tasks run on a :mod:`dask.distributed` client (a local cluster of
 one single-threaded worker process per core by default, or an existing
@@ -61,6 +62,7 @@ import csv
 import dataclasses
 import datetime
 import difflib
+import functools
 import hashlib
 import io
 import json
@@ -69,6 +71,7 @@ import os
 import re
 import time
 import tomllib
+import types
 import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -899,12 +902,53 @@ class dask_mapper:  # noqa: N801 - used like a function
         self.block_records = max(1, int(block_records))
 
     def __call__(self, function, items):
-        futures = self.client.map(function, list(items), pure=False)
+        futures = self.client.map(_call_realigned, [function] * len(items := list(items)), items, pure=False)
         try:
             for future in futures:
                 yield future.result()
         finally:
             self.client.cancel(futures)
+
+
+def _realigned(value, seen=None):
+    """``value`` with every numpy array reachable from it aligned (misaligned ones copied), in place where needed.
+
+    Dask ships large numpy arrays as separate buffers that can land at any byte offset of a
+    worker's message frame, so an array may arrive misaligned (measured: a plan's line spectrum
+    at byte offset 10), and numpy then sums it by another, buffered path whose rounding differs
+    in the last bits: a record made on a worker would differ from the same record made in this
+    process.  An aligned copy is summed as here, so the figures are the same wherever they are
+    computed, bit for bit.  Walks partials, tuples, lists, dicts and objects' attributes (the
+    worker's own copy of the task is changed; frozen dataclasses included).
+    """
+    import numpy as np
+
+    seen = set() if seen is None else seen
+    if isinstance(value, np.ndarray):
+        return value if value.flags.aligned or value.dtype.hasobject else value.copy()
+    if id(value) in seen or isinstance(value, (str, bytes, int, float, complex, bool, type(None), type,
+                                               types.ModuleType)):
+        return value
+    seen.add(id(value))
+    if isinstance(value, functools.partial):
+        return functools.partial(_realigned(value.func, seen), *(_realigned(a, seen) for a in value.args),
+                                 **{k: _realigned(v, seen) for k, v in value.keywords.items()})
+    if type(value) in (tuple, list):
+        return type(value)(_realigned(item, seen) for item in value)
+    if type(value) is dict:
+        return {key: _realigned(item, seen) for key, item in value.items()}
+    attributes = getattr(value, "__dict__", None)
+    if isinstance(attributes, dict) and not callable(value):
+        for key, item in list(attributes.items()):
+            new = _realigned(item, seen)
+            if new is not item:
+                object.__setattr__(value, key, new)
+    return value
+
+
+def _call_realigned(function, *args):
+    """``function(*args)`` after :func:`_realigned` of both (on a worker)."""
+    return _realigned(function)(*_realigned(args))
 
 
 def worker_count(client) -> int:
@@ -989,7 +1033,7 @@ def run_batch(batch: PreparedBatch, client, progress: Callable[[dict, int, int],
     futures = {}
     for task in batch.tasks:
         key = f"vibsynth-{task.job}-{task.seed}-{task.job_hash[:12]}"
-        futures[client.submit(run_task, task, key=key, pure=False)] = task
+        futures[client.submit(_call_realigned, run_task, task, key=key, pure=False)] = task
     collected = list(batch.warnings)
     total = len(futures)
     for finished, future in enumerate(as_completed(list(futures), loop=client.loop), start=1):

@@ -79,18 +79,21 @@ def test_docstring_examples_run(name):
     assert tried > 0 and failures == 0
 
 
-def test_records_are_bit_identical_in_one_process_and_on_one_or_two_dask_workers(capsys, tmp_path):
+def test_records_are_bit_identical_in_one_process_and_on_one_or_two_dask_workers(capsys):
     pytest.importorskip("distributed")
-    argv = ["severity", _flat_csv(tmp_path), "--duration", "60", "--records", "4", "--record-duration", "1",
-            "--points", "4", "--fn-min", "50", "--fn-max", "400", "--seed", "11", "--json"]
+    # 8 s records at 20480 Hz: a plan large enough that Dask ships its arrays out of band, where they
+    # can arrive misaligned (numpy then sums them with another rounding) unless packed in-band
+    argv = ["severity", "bench-flat", "--duration", "60", "--records", "3", "--record-duration", "8",
+            "--points", "4", "--json"]
     alone = _json(capsys, argv)
     one = _json(capsys, argv + ["--workers", "1"])
     two = _json(capsys, argv + ["--workers", "2"])
     assert one == alone and two == alone  # every record from its own spawn key: the same figures, to the last bit
     each = np.asarray(alone["fds_each_record"])
-    assert each.shape == (4, 4) and np.all(each > 0)
-    assert len({tuple(row) for row in each.tolist()}) == 4  # four different realizations
-    assert alone["records"] == 4 and alone["record_seed"] == 11 and alone["record_damage_scale"] == 60.0
+    assert each.shape == (3, 4) and np.all(each > 0)
+    assert len({tuple(row) for row in each.tolist()}) == 3  # three different realizations
+    assert alone["records"] == 3 and alone["record_seed"] == 0 and alone["record_damage_scale"] == 7.5
+    assert alone["record_rate_hz"] == 20480.0  # 10 x the top natural frequency (2000 Hz), a common rate
 
 
 def test_record_i_depends_only_on_i_and_the_summary_is_that_of_the_records(capsys, tmp_path):
