@@ -46,7 +46,6 @@ from typing import Iterator
 import numpy as np
 
 from vibsynth.errors import InputError
-from vibsynth.generate._threads import frame_workers, ordered_map
 
 #: Pass-band edge of the spill-over high-pass, as a fraction of the lowest band frequency.
 HIGHPASS_PASS_FRACTION = 0.95
@@ -446,58 +445,31 @@ class PartitionedHighpass:
         """Index of the last stream piece that output block ``last_block`` needs."""
         return last_block + self.lag
 
-    def filter(self, pieces: Iterator[np.ndarray], workers: int = 1) -> Iterator[np.ndarray]:
+    def filter(self, pieces: Iterator[np.ndarray]) -> Iterator[np.ndarray]:
         """Output blocks (P samples each) from the stream pieces ``first_piece .. last_piece``, in order.
 
         Pieces of shape (P,) or (P, channels) (each channel filtered alike).
-        With ``workers > 1`` the two halves of the work, the spectrum of each
-        pair of pieces and each block's multiply-accumulate and inverse FFT, run
-        on threads (:func:`vibsynth.generate._threads.ordered_map`): every
-        block is computed by the same operations in the same order, so the
-        output is the same bit for bit.
         """
         size, spectra, lag = self.partition, self.spectra, self.lag
         count = spectra.shape[0]
         direct = lag // 2  # the piece holding stream samples n + D of output block o is piece o + lag/2
-        threads, in_flight = frame_workers(workers, 2 * size)
-
-        def pairs():
-            previous = None
-            for current in pieces:
-                if previous is not None:
-                    yield previous, current
-                previous = current
-
-        def spectrum(pair):
-            previous, current = pair
-            return np.fft.rfft(np.concatenate((previous, current)), axis=0), current
-
-        def windows(transformed):
-            recent: collections.deque = collections.deque(maxlen=count)
-            kept: collections.deque = collections.deque(maxlen=lag - direct + 1)
-            for piece_spectrum, current in transformed:
-                recent.append(piece_spectrum)
+        recent: collections.deque = collections.deque(maxlen=count)
+        kept: collections.deque = collections.deque(maxlen=lag - direct + 1)
+        previous = None
+        for current in pieces:
+            if previous is not None:
+                if current.ndim == 2 and spectra.ndim == 2:
+                    spectra = spectra[:, :, None]
+                recent.append(np.fft.rfft(np.concatenate((previous, current)), axis=0))
                 kept.append(current)
                 if len(recent) == count:
-                    yield tuple(recent), kept[0]
-
-        def block(window):
-            recent, piece = window
-            kernel = spectra[:, :, None] if piece.ndim == 2 else spectra
-            accumulated = recent[-1] * kernel[0]
-            product = np.empty_like(accumulated)
-            for q in range(1, count):
-                accumulated += np.multiply(recent[-1 - q], kernel[q], out=product)
-            lowpass = np.fft.irfft(accumulated, n=2 * size, axis=0)
-            return piece - lowpass[size:]
-
-        transformed = ordered_map(spectrum, pairs(), threads, in_flight)
-        blocks = ordered_map(block, windows(transformed), threads, in_flight)
-        try:
-            yield from blocks
-        finally:
-            blocks.close()
-            transformed.close()
+                    accumulated = recent[-1] * spectra[0]
+                    product = np.empty_like(accumulated)
+                    for q in range(1, count):
+                        accumulated += np.multiply(recent[-1 - q], spectra[q], out=product)
+                    lowpass = np.fft.irfft(accumulated, n=2 * size, axis=0)
+                    yield kept[0] - lowpass[size:]
+            previous = current
 
 
 def smooth_bound_gain(z: np.ndarray, limit: float, half_width: int, lo: int, hi: int) -> np.ndarray:

@@ -424,7 +424,7 @@ class Synthesizer:
             engine = self._partitioned
             pieces = self._stream_pieces(size, engine.first_piece(first_block), engine.last_piece(last_block))
             try:
-                yield from engine.filter(pieces, self.workers)
+                yield from engine.filter(pieces)
             finally:
                 pieces.close()
             return
