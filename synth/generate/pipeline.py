@@ -354,31 +354,16 @@ class Synthesizer:
         plan = self.plan
         hop = plan.hop
         plan._window, plan._stream_amplitudes, plan._band  # noqa: B018 - cached before the threads read them
-        if plan.modulation is not None and self._envelope_knots is None:
-            self._envelope_knots = plan.modulation.knots(self.root)
         threads, in_flight = frame_workers(self.workers, plan.frame_length)
         frames = ordered_map(self._windowed_frame, range(first_hop, last_hop + 2), threads, in_flight)
-
-        def neighbours():
-            previous = None
-            for index, following in enumerate(frames, start=first_hop - 1):
-                if previous is not None:
-                    yield index, previous, following
-                previous = following
-
-        def hop_block(item):
-            # the second half of frame `index` plus the first half of the next, summed in place: each hop
-            # block writes only its own frame's second half, so blocks can be summed on the threads
-            index, previous, following = item
-            out = previous[hop:]
-            out += following[:hop]
-            return self._modulate(out, index * hop)
-
-        blocks = ordered_map(hop_block, neighbours(), threads, in_flight)
         try:
-            yield from blocks
+            previous = next(frames)
+            for index, following in enumerate(frames, start=first_hop):
+                out = previous[hop:]
+                out += following[:hop]
+                yield self._modulate(out, index * hop)
+                previous = following
         finally:
-            blocks.close()
             frames.close()
 
     def _stream_pieces(self, size: int, first: int, last: int) -> Iterator[np.ndarray]:
