@@ -11,7 +11,9 @@ asserts them.
 from __future__ import annotations
 
 import json
+import sys
 import time
+from pathlib import Path
 
 import numpy as np
 import scipy.signal
@@ -20,41 +22,10 @@ from vibsynth.generate.channels import make_channel_plan
 from vibsynth.generate.pipeline import Synthesizer, make_synthesizer
 from vibsynth.profile.multichannel import parse_any_toml
 
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+from test_multichannel import THREE  # noqa: E402  (the suite's three-channel profile, one copy)
+
 RATE = 5120.0
-THREE = """
-[[channels]]
-name = "x"
-profile = "bench-flat"
-[[channels]]
-name = "y"
-profile = "crop-drone-camera"
-[[channels]]
-name = "z"
-[[channels.breakpoints]]
-frequency = 20.0
-asd = 0.01
-[[channels.breakpoints]]
-frequency = 2000.0
-asd = 0.01
-[[pairs]]
-channels = ["x", "y"]
-coherence = 0.8
-phase_deg = 0.0
-[[pairs]]
-channels = ["x", "z"]
-coherence = 0.5
-phase_deg = 90.0
-[[pairs]]
-channels = ["y", "z"]
-[[pairs.breakpoints]]
-frequency = 20.0
-coherence = 0.3
-phase_deg = 75.0
-[[pairs.breakpoints]]
-frequency = 2000.0
-coherence = 0.7
-phase_deg = 105.0
-"""
 
 
 def _best(function, repeats: int = 3) -> float:
