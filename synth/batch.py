@@ -477,14 +477,6 @@ class PreparedBatch:
     warnings: tuple
 
 
-def _sha256(path) -> str:
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
-
-
 def _plain(value):
     """A value as JSON would give it back (tuples -> lists, numpy scalars -> numbers)."""
     from vibsynth.io.atomic import json_text
@@ -514,7 +506,7 @@ def _sidecar_mismatch(expected: dict, path: Path, rate_hz: float, samples: int, 
 
 def _done_row(task: BatchTask, folder: Path) -> dict | None:
     """The summary row recorded by a finished task, or None when it is not finished."""
-    from vibsynth.io.drivefile import sidecar_path
+    from vibsynth.io import drivefile
 
     record_path = folder / task.verify_name
     try:
@@ -522,7 +514,7 @@ def _done_row(task: BatchTask, folder: Path) -> dict | None:
         batch = record["batch"]
         if batch["job_hash"] != task.job_hash or batch["seed"] != task.seed:
             return None
-        if batch["sidecar_sha256"] != _sha256(sidecar_path(folder / task.drive_name)):
+        if batch["sidecar_sha256"] != drivefile.file_sha256(drivefile.sidecar_path(folder / task.drive_name)):
             return None
         if (folder / task.drive_name).stat().st_size != batch["drive_bytes"]:
             return None
@@ -712,7 +704,7 @@ def run_task(task: BatchTask) -> dict:
             messages.append(result.segment_message)
         summary = data
         row.update(
-            sha256=_sha256(drive_path),
+            sha256=drivefile.file_sha256(drive_path),
             sidecar=side.name,
             verify_file=task.verify_name,
             status="made" if made else "verified",
@@ -730,7 +722,7 @@ def run_task(task: BatchTask) -> dict:
             "job_hash": task.job_hash,
             "drive_sha256": row["sha256"],
             "drive_bytes": drive_path.stat().st_size,
-            "sidecar_sha256": _sha256(side),
+            "sidecar_sha256": drivefile.file_sha256(side),
             "row": {key: row[key] for key in SUMMARY_COLUMNS if key != "status"},
             "warnings": messages,
         }
@@ -786,10 +778,9 @@ def default_worker_count() -> int:
     ----------
     Python ``os.sched_getaffinity`` (where available) or ``os.cpu_count``.
     """
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except (AttributeError, OSError):
-        return max(1, os.cpu_count() or 1)
+    from vibsynth.generate._threads import available_threads
+
+    return available_threads(limit=None)
 
 
 @contextlib.contextmanager

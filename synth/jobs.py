@@ -31,8 +31,6 @@ from __future__ import annotations
 
 import dataclasses
 import datetime
-import hashlib
-import os
 import re
 import warnings
 from dataclasses import dataclass, field
@@ -1000,9 +998,9 @@ def report_facts(drive, level: str | None = None, label: str | None = None, crea
         level=level or (level_text(options) if side is not None else ""),
         profile_source=str(((side.profile or {}).get("source") if side is not None else "") or ""),
         ramps=ramps,
-        drive_sha256=_sha256(drive.path),
+        drive_sha256=drivefile.file_sha256(drive.path),
         sidecar_name=side_path.name if side_path.exists() else "",
-        sidecar_sha256=_sha256(side_path) if side_path.exists() else "",
+        sidecar_sha256=drivefile.file_sha256(side_path) if side_path.exists() else "",
         tool_version=__version__,
         created_utc=created_utc or _now_utc(),
         model=dict(side.transform) if side is not None and isinstance(side.transform, dict) else None,
@@ -1244,14 +1242,6 @@ def _now_utc() -> str:
     return datetime.datetime.now(datetime.timezone.utc).isoformat(timespec="seconds")
 
 
-def _sha256(path: Path) -> str:
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
-
-
 def run_report(result_files: dict, folder: Path, drive_path: Path, profile: "AsdProfile", profile_source: str | None,
                written: dict, verification: "Verification", run_warnings, paper: str = "a4",
                created_utc: str | None = None, severity: dict | None = None, shaker_fit: dict | None = None) -> dict:
@@ -1278,8 +1268,8 @@ def run_report(result_files: dict, folder: Path, drive_path: Path, profile: "Asd
         "tool": {"name": "vibsynth", "version": __version__},
         "created_utc": created_utc or _now_utc(),
         "paper": paper,
-        "drive": {"path": drive_path.name, "sha256": _sha256(drive_path)},
-        "sidecar": {"path": side.name, "sha256": _sha256(side)},
+        "drive": {"path": drive_path.name, "sha256": drivefile.file_sha256(drive_path)},
+        "sidecar": {"path": side.name, "sha256": drivefile.file_sha256(side)},
         "profile": {"path": "profile.toml", **profile_block(profile, profile_source)},
         "generation": {
             "seed": written.get("seed"),

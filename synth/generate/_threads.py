@@ -50,17 +50,22 @@ def check_workers(workers) -> int:
     return count
 
 
-def available_threads(limit: int = 8) -> int:
+def available_threads(limit: int | None = 8) -> int:
     """The CPUs this process may run on, at most ``limit`` (at least 1).
 
     Parameters
     ----------
-    limit : int
-        Most threads returned.
+    limit : int or None
+        Most threads returned (None: no cap).
 
     Returns
     -------
     int
+
+    Examples
+    --------
+    >>> 1 <= available_threads(2) <= 2, available_threads(None) >= available_threads(1)
+    (True, True)
 
     References
     ----------
@@ -70,7 +75,7 @@ def available_threads(limit: int = 8) -> int:
         count = len(os.sched_getaffinity(0))
     except (AttributeError, OSError):
         count = os.cpu_count() or 1
-    return max(1, min(int(count), int(limit)))
+    return max(1, int(count) if limit is None else min(int(count), int(limit)))
 
 
 def ordered_map(function: Callable, items, workers: int, in_flight: int) -> Iterator:

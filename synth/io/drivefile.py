@@ -45,6 +45,7 @@ Microsoft/IBM RIFF WAVE format; FLAC format specification (xiph.org); NumPy
 from __future__ import annotations
 
 import dataclasses
+import hashlib
 import math
 import os
 import shutil
@@ -755,6 +756,30 @@ def write_drive(path, chunks, *, rate_hz: float, samples: int, quantities=("acce
                 progress(len(chunk))
         return writer.commit()
 
+
+
+def file_sha256(path) -> str:
+    """SHA-256 of a file's bytes, hex (read in 1 MiB blocks: constant memory).
+
+    What reports and batch summaries record for a drive file and its sidecar.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "x.bin"
+    >>> _ = path.write_bytes(b"abc")
+    >>> file_sha256(path)[:16]
+    'ba7816bf8f01cfea'
+
+    References
+    ----------
+    FIPS PUB 180-4, Secure Hash Standard (SHA-256).
+    """
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
 
 
 # ----------------------------------------------------------------- reading
