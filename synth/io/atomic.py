@@ -34,6 +34,10 @@ STALE_PARTIAL_AGE_S = 60.0
 #: Suffix of every temporary file.
 PARTIAL_SUFFIX = ".partial"
 
+#: A growing temporary file has its kernel write-back started every this many bytes
+#: (:meth:`AtomicFile.write_back_ahead`), so the commit's fsync waits only for the last stretch.
+WRITE_BACK_STEP_BYTES = 16 * 2**20
+
 #: What a scratch file's tag may be (``partial_path(..., tag=...)``): lower-case words joined by ``-``.
 _TAG = re.compile(r"[a-z]+(?:-[a-z]+)*")
 
@@ -181,9 +185,61 @@ class AtomicFile:
         remove_stale_partials(self.destination)
         self.temporary = partial_path(self.destination)
         self.committed = False
+        self._watch: int | None = None  # a descriptor of the temporary, for write_back_ahead
+        self._written_back = 0
+
+    def write_back_ahead(self) -> int:
+        """Start the kernel's write-back of what the temporary file has grown by, every :data:`WRITE_BACK_STEP_BYTES`.
+
+        Call it now and then while a writer (this process's, or a library's
+        writing to :attr:`temporary` by name) appends to the file: the disk
+        then works while the samples are made, and :meth:`commit`'s fsync
+        waits only for the last stretch (a 128 MB drive: 60-80 ms of fsync
+        down to a few ms on the machine this was measured on).  Advisory and
+        harmless: pages not yet written stay cached; on systems without
+        ``posix_fadvise`` it does nothing.
+
+        Returns
+        -------
+        int
+            Bytes whose write-back has been started so far.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib
+        >>> pending = AtomicFile(pathlib.Path(tempfile.mkdtemp()) / "big.bin")
+        >>> _ = pending.temporary.write_bytes(bytes(WRITE_BACK_STEP_BYTES))
+        >>> pending.write_back_ahead() in (0, WRITE_BACK_STEP_BYTES)  # 0 where posix_fadvise is missing
+        True
+        >>> pending.discard()
+
+        References
+        ----------
+        POSIX posix_fadvise(2) with POSIX_FADV_DONTNEED (Linux starts write-back of the dirty pages of
+        the range and drops only pages already clean).
+        """
+        advise = getattr(os, "posix_fadvise", None)
+        if advise is None or self.committed:
+            return self._written_back
+        try:
+            if self._watch is None:
+                self._watch = os.open(self.temporary, os.O_RDONLY)
+            size = os.fstat(self._watch).st_size
+            if size - self._written_back >= WRITE_BACK_STEP_BYTES:
+                advise(self._watch, self._written_back, size - self._written_back, os.POSIX_FADV_DONTNEED)
+                self._written_back = size
+        except OSError:  # advice only: a file system that refuses it loses nothing
+            pass
+        return self._written_back
+
+    def _unwatch(self) -> None:
+        if self._watch is not None:
+            watch, self._watch = self._watch, None
+            os.close(watch)
 
     def commit(self, sync: bool = True) -> Path:
         """Flush the temporary file to disk and rename it over the destination; returns the destination."""
+        self._unwatch()
         if sync:
             with open(self.temporary, "rb") as handle:
                 os.fsync(handle.fileno())
@@ -193,6 +249,7 @@ class AtomicFile:
 
     def discard(self) -> None:
         """Remove the temporary file (the destination is untouched)."""
+        self._unwatch()
         if not self.committed:
             try:
                 os.unlink(self.temporary)

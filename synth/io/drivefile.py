@@ -674,6 +674,7 @@ class DriveWriter:
         else:
             self._format_writer.write(prepared.payload, self.written)
         self.written += prepared.count
+        self._data.write_back_ahead()
 
     def sidecar(self) -> Sidecar:
         """The sidecar as it will be written (the writer's own fields override the caller's)."""
