@@ -369,22 +369,35 @@ def _compensate_on_grid_once(profile: AsdProfile, plan: SynthesisPlan, transform
             "resolution",
         )
     result = compensate_spectrum(target, df, transform, **options)
+    return result, frame, exact_grid
+
+
+def _record_spectrum(plan: SynthesisPlan, result: CompensationResult, frame: int, exact_grid: bool) -> np.ndarray:
+    """The compensated spectrum on the record's grid (read-only, ``sum * df = 1``), from a compensation on ``frame``.
+
+    Made only for the compensation the plan uses: the retention and pilot
+    compensations need their Gaussian spectrum on their own grid alone.
+    """
     if exact_grid:
         spectrum = np.array(result.gaussian_psd_per_hz, dtype=float)
+        inside = None
     else:
+        target = result.target_asd_g2_per_hz
         band = target > 0
         factor = result.gaussian_psd_per_hz[band] / target[band]
-        coarse_hz = np.flatnonzero(band) * df
-        fine = np.array(plan.line_spectrum, dtype=float)
-        inside = np.flatnonzero(fine > 0)
-        fine[inside] *= np.interp(inside * plan.resolution_hz, coarse_hz, factor)
-        spectrum = fine
+        coarse_hz = np.flatnonzero(band) * (plan.rate_hz / frame)
+        inside = np.flatnonzero(np.asarray(plan.line_spectrum) > 0)
+        spectrum = np.array(plan.line_spectrum, dtype=float)
+        spectrum[inside] *= np.interp(inside * plan.resolution_hz, coarse_hz, factor)
     total = float(np.sum(spectrum)) * plan.resolution_hz
     if not (math.isfinite(total) and total > 0):
         raise InputError("the compensated spectrum has no power on the record's grid; use a finer resolution", "resolution")
-    spectrum /= total
+    if inside is None:
+        spectrum /= total
+    else:  # every other line is a zero, which the division keeps as it is
+        spectrum[inside[0] : inside[-1] + 1] /= total
     spectrum.setflags(write=False)
-    return result, spectrum, frame, exact_grid
+    return spectrum
 
 
 #: Samples of the pilot records that check a Hermite drive's moments after the high-pass.
@@ -464,7 +477,7 @@ def _pilot_corrected(profile, plan, applied, requested, highpass, options, frame
     skewness, kurtosis = requested
     response = None
     for _ in range(_PILOT_STEPS):
-        result, _, grid, _ = _compensate_on_grid(profile, plan, applied, options, frame, memo)
+        result, grid, _ = _compensate_on_grid(profile, plan, applied, options, frame, memo)
         if response is None:
             response = highpass.record_response(grid)
         measured_s, measured_k = _pilot_moments(result.gaussian_psd_per_hz, grid, applied, response, memo=memo,
@@ -548,7 +561,7 @@ def design_nongaussian(profile: AsdProfile, plan: SynthesisPlan, transform, *, c
         # the retained shares are integrals over the whole spectrum: a coarser grid gives them to
         # many digits and keeps the planning of long periodic records fast
         frame = min(_compensation_frame_length(plan), _RETENTION_FRAME_LENGTH)
-        first, _, frame, _ = _compensate_on_grid(profile, plan, transform, compensation_options, frame, memo)
+        first, frame, _ = _compensate_on_grid(profile, plan, transform, compensation_options, frame, memo)
         p2, p3 = highpass_moment_retention(first.gaussian_psd_per_hz, highpass.record_response(frame))
         _, _, skewness, kurtosis = transform.moments()
         retention = (p2, p3)
@@ -560,7 +573,8 @@ def design_nongaussian(profile: AsdProfile, plan: SynthesisPlan, transform, *, c
             applied, requested = corrected, (float(skewness), float(kurtosis))
             applied = _pilot_corrected(profile, plan, applied, (float(skewness), float(kurtosis)), highpass,
                                        compensation_options, frame, memo, workers)
-    result, spectrum, frame, exact_grid = _compensate_on_grid(profile, plan, applied, compensation_options, None, memo)
+    result, frame, exact_grid = _compensate_on_grid(profile, plan, applied, compensation_options, None, memo)
+    spectrum = _record_spectrum(plan, result, frame, exact_grid)
     return NonGaussianDesign(
         transform=applied,
         line_spectrum=spectrum,

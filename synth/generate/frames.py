@@ -108,21 +108,40 @@ def _draw_lines(rng: np.random.Generator, amplitudes: np.ndarray, amplitude: str
     Every line draws its pair (so the draws do not depend on the spectrum);
     only lines inside ``band`` (the non-zero amplitudes) are then shaped.
     """
-    spectrum = np.empty(amplitudes.size, dtype=np.complex128)
+    band = _band_of(amplitudes) if band is None else band
+    return _shape_lines(_draw_normals(rng, amplitudes.size, band, amplitude), amplitudes, amplitude)
+
+
+def _draw_normals(rng: np.random.Generator, size: int, band: tuple[int, int], amplitude: str) -> tuple:
+    """The part of :func:`_draw_lines` that does not need the amplitudes: the normal pairs (zero outside
+    ``band``) and, for ``fixed``, their magnitudes on ``band`` (a zero pair made ``1 + 0i``).
+
+    Returns ``(spectrum, band, magnitude)`` (``magnitude`` None for ``rayleigh``) for :func:`_shape_lines`.
+    """
+    spectrum = np.empty(size, dtype=np.complex128)
     rng.standard_normal(out=spectrum.view(np.float64))
-    lo, hi = _band_of(amplitudes) if band is None else band
+    lo, hi = band
     spectrum[:lo] = 0.0
     spectrum[hi:] = 0.0
-    part = spectrum[lo:hi]
-    weights = amplitudes[lo:hi]
     if amplitude == "rayleigh":
-        part *= weights * math.sqrt(0.5)
-        return spectrum
+        return spectrum, (lo, hi), None
+    part = spectrum[lo:hi]
     magnitude = np.abs(part)
     zero = magnitude == 0.0
     if np.any(zero):  # probability zero; a phase of 0 keeps the amplitude exact
         part[zero] = 1.0
         magnitude[zero] = 1.0
+    return spectrum, (lo, hi), magnitude
+
+
+def _shape_lines(drawn: tuple, amplitudes: np.ndarray, amplitude: str) -> np.ndarray:
+    """Finish :func:`_draw_lines` from :func:`_draw_normals`' result (changed in place and returned)."""
+    spectrum, (lo, hi), magnitude = drawn
+    part = spectrum[lo:hi]
+    weights = amplitudes[lo:hi]
+    if amplitude == "rayleigh":
+        part *= weights * math.sqrt(0.5)
+        return spectrum
     np.divide(weights, magnitude, out=magnitude)
     part *= magnitude
     return spectrum
