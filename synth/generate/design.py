@@ -413,7 +413,10 @@ def _pilot_phasors(frame: int, count: int, memo: _DesignMemo | None = None) -> l
     """Unit phasors ``exp(2 pi i phi)`` of the pilot records' lines (fixed seed; the same at every pilot step)."""
     key = (frame, count)
     if memo is not None and key in memo.phasors:
-        return memo.phasors[key]
+        found = memo.phasors[key]
+        if not isinstance(found, list):  # made ahead on another thread (design_nongaussian)
+            found = memo.phasors[key] = found.result()
+        return found
     rng = np.random.default_rng(0x5EED)
     phasors = [np.exp(2j * np.pi * rng.random(frame // 2 + 1)) for _ in range(count)]
     if memo is not None:
@@ -561,6 +564,13 @@ def design_nongaussian(profile: AsdProfile, plan: SynthesisPlan, transform, *, c
         # the retained shares are integrals over the whole spectrum: a coarser grid gives them to
         # many digits and keeps the planning of long periodic records fast
         frame = min(_compensation_frame_length(plan), _RETENTION_FRAME_LENGTH)
+        if workers > 1:  # the pilot records' phases do not depend on the compensation: made meanwhile
+            from concurrent.futures import ThreadPoolExecutor
+
+            count = max(1, _PILOT_SAMPLES // frame)
+            executor = ThreadPoolExecutor(max_workers=1, thread_name_prefix="vibsynth-pilot")
+            memo.phasors[(frame, count)] = executor.submit(_pilot_phasors, frame, count)
+            executor.shutdown(wait=False)
         first, frame, _ = _compensate_on_grid(profile, plan, transform, compensation_options, frame, memo)
         p2, p3 = highpass_moment_retention(first.gaussian_psd_per_hz, highpass.record_response(frame))
         _, _, skewness, kurtosis = transform.moments()

@@ -80,6 +80,13 @@ def line_amplitudes(line_spectrum, rate_hz: float, frame_length: int) -> np.ndar
 
 
 def _clean_line_spectrum(line_spectrum, frame_length: int) -> np.ndarray:
+    if _is_clean_constant(line_spectrum, frame_length):
+        # a read-only float64 array that owns its data (a plan's spectrum, or a design's) is shared, not copied:
+        # the same values, and a long record's planning skips a copy of millions of lines
+        spectrum = line_spectrum
+        if not math.isfinite(float(np.sum(spectrum))) or float(np.min(spectrum)) < 0:
+            raise InputError("line spectrum values must be finite and >= 0", "line_spectrum")
+        return spectrum
     spectrum = np.array(line_spectrum, dtype=float).ravel()
     if spectrum.size != frame_length // 2 + 1:
         raise InputError(
@@ -92,6 +99,17 @@ def _clean_line_spectrum(line_spectrum, frame_length: int) -> np.ndarray:
     if frame_length % 2 == 0:
         spectrum[-1] = 0.0
     return spectrum
+
+
+def _is_clean_constant(line_spectrum, frame_length: int) -> bool:
+    """True for a read-only 1-D float64 array owning its data, of ``N//2 + 1`` lines, with +0.0 at DC
+    (and Nyquist, for even N): :func:`_clean_line_spectrum` would return an equal copy of it."""
+    if not (isinstance(line_spectrum, np.ndarray) and line_spectrum.dtype == np.float64 and line_spectrum.ndim == 1
+            and line_spectrum.flags.owndata and not line_spectrum.flags.writeable
+            and line_spectrum.size == frame_length // 2 + 1):
+        return False
+    ends = line_spectrum[[0, -1]] if frame_length % 2 == 0 else line_spectrum[:1]
+    return not np.any(ends != 0.0) and not np.any(np.signbit(ends))
 
 
 def _band_of(amplitudes: np.ndarray) -> tuple[int, int]:

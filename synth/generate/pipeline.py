@@ -302,11 +302,14 @@ class Synthesizer:
             self._modulate(columns[:, 0], 0)
             if plan.transform is not None:
                 y = columns[:, 0]
-                self._apply_transform(y)
+                transform, limit = plan.transform, plan.transform.peak_limit
                 if plan.spill_highpass is not None:
                     del columns  # a short record's inverse transform allocates the next; free this one first
-                    y = periodic_highpass(y, plan.spill_highpass, self.workers)
-                    limit = plan.transform.peak_limit
+                    # the transform (and, when unbounded, the final scale) applied stretch by stretch
+                    # inside the high-pass's passes over the record: the same samples, fewer passes
+                    y = periodic_highpass(y, plan.spill_highpass, self.workers,
+                                          prepare=lambda stretch: transform.apply(stretch, out=stretch),
+                                          finish=self._finish_transformed if limit is None else None)
                     if limit is not None:
                         for _ in range(BOUND_PASSES):  # alternating projections, see BOUND_PASSES
                             np.clip(y, -limit, limit, out=y)
@@ -316,7 +319,11 @@ class Synthesizer:
                         padded = np.concatenate((y[-w:], y, y[:w]))
                         y *= smooth_bound_gain(padded, limit, w, w, w + y.size)
                         del padded
-                columns = self._finish_transformed(y).reshape(-1, 1)
+                        self._finish_transformed(y)
+                else:
+                    self._apply_transform(y)
+                    self._finish_transformed(y)
+                columns = y.reshape(-1, 1)
             elif plan.spill_highpass is not None:
                 columns = periodic_highpass(columns[:, 0], plan.spill_highpass, self.workers).reshape(-1, 1)
             self._ramp(columns, 0)
