@@ -386,7 +386,8 @@ def _record_spectrum(plan: SynthesisPlan, result: CompensationResult, frame: int
         band = target > 0
         factor = result.gaussian_psd_per_hz[band] / target[band]
         coarse_hz = np.flatnonzero(band) * (plan.rate_hz / frame)
-        inside = np.flatnonzero(np.asarray(plan.line_spectrum) > 0)
+        lo, hi = plan._band  # every non-zero line of the plan's spectrum
+        inside = lo + np.flatnonzero(np.asarray(plan.line_spectrum)[lo:hi] > 0)
         spectrum = np.array(plan.line_spectrum, dtype=float)
         spectrum[inside] *= np.interp(inside * plan.resolution_hz, coarse_hz, factor)
     total = float(np.sum(spectrum)) * plan.resolution_hz

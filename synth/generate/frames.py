@@ -113,11 +113,27 @@ def _is_clean_constant(line_spectrum, frame_length: int) -> bool:
 
 
 def _band_of(amplitudes: np.ndarray) -> tuple[int, int]:
-    """Index range [lo, hi) holding every non-zero line."""
-    nonzero = np.flatnonzero(amplitudes)
-    if nonzero.size == 0:
+    """Index range [lo, hi) holding every non-zero line (NaN counts as non-zero, as for ``np.flatnonzero``)."""
+    values = np.asarray(amplitudes).ravel()
+    # scanned in cache-sized pieces from each end: a long record's band is a small part of its lines
+    step = _BAND_SCAN
+    for start in range(0, values.size, step):
+        found = np.flatnonzero(values[start : start + step] != 0)
+        if found.size:
+            lo = start + int(found[0])
+            break
+    else:
         return 0, 0
-    return int(nonzero[0]), int(nonzero[-1]) + 1
+    for stop in range(values.size, lo, -step):
+        start = max(stop - step, lo)
+        found = np.flatnonzero(values[start:stop] != 0)
+        if found.size:
+            return lo, start + int(found[-1]) + 1
+    raise AssertionError("unreachable: line lo is non-zero")
+
+
+#: Lines per piece that :func:`_band_of` scans at a time.
+_BAND_SCAN = 1 << 16
 
 
 def _draw_lines(rng: np.random.Generator, amplitudes: np.ndarray, amplitude: str, band=None) -> np.ndarray:
