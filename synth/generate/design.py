@@ -45,9 +45,12 @@ than 2^20 lines moves no line of a 2^24-sample record at 51.2 kHz by more than
 The design's own repeated work is done once: the target on a compensation
 grid, a compensation the pilot already made on the final grid for the final
 transform, and the pilot records' phases (the same fixed-seed phases at every
-pilot step).  Pilot records are made on worker threads (``workers``) and their
-power sums added in record order, so the design does not depend on the number
-of threads.
+pilot step; with ``workers > 1`` made on another thread while the first
+compensation runs).  Pilot records are made on worker threads (``workers``) and
+their power sums added in record order, so the design does not depend on the
+number of threads.  The compensated spectrum is interpolated onto the record's
+lines once, for the compensation the plan uses (the retention and pilot
+compensations need only their own grid).
 
 Scaling and the high-pass
 -------------------------

@@ -13,7 +13,9 @@ chunk size a record is read in):
 :func:`periodic_highpass`
     a periodic record, exactly in the frequency domain (circular, so a looped
     record still loops); a long record has only its lowest lines computed and
-    changed (:mod:`vibsynth.generate.lowband`) instead of two whole-record FFTs;
+    changed (:mod:`vibsynth.generate.lowband`) instead of two whole-record FFTs,
+    and memoryless stages before and after it (a transform, the final scale)
+    can ride along in those passes over the record (``prepare``, ``finish``);
 :class:`PartitionedHighpass`
     a linear (Gaussian) overlap-add stream, by uniformly partitioned
     overlap-save: the FIR in partitions of P samples, FFTs of 2P that stay in

@@ -20,7 +20,13 @@ is the identity.
     root :class:`numpy.random.SeedSequence`).  Velocity and displacement
     columns are integrated from the same lines in the frequency domain.  A
     transformed record is high-passed exactly in the frequency domain
-    (circularly, so a looped record still loops seamlessly).
+    (circularly, so a looped record still loops seamlessly); its transform
+    and final scale are applied stretch by stretch inside the high-pass's
+    passes over the record.  The design of a non-Gaussian record does not
+    depend on the seed, nor its normal draws on the design:
+    :func:`nongaussian_synthesizer` (used by :func:`make_synthesizer`) draws
+    them on a second thread while the design runs.  The samples are the same,
+    bit for bit, as with every stage in turn.
 ``overlap-add``
     Independent frames of ``N`` samples, each multiplied by the sine window
     ``w[n] = sin(pi (n + 1/2) / N)``, laid every ``N/2`` samples with the first
