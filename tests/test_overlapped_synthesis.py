@@ -27,6 +27,7 @@ import numpy as np
 import pytest
 import scipy.fft
 
+from vibsynth.errors import InputError
 from vibsynth.generate.design import make_nongaussian_plan
 from vibsynth.generate.frames import _draw_normals
 from vibsynth.generate.highpass import SpillHighpass, periodic_highpass
@@ -75,6 +76,12 @@ def test_library_entry_point_uses_the_overlap_and_keeps_the_samples():
                                                memory_budget_bytes=1 << 40, workers=2)
     assert single and synthesizer._drawn is not None
     assert synthesizer.take_record().tobytes() == reference.tobytes()
+
+
+def test_no_transform_is_refused_before_any_draw():
+    base = plan_synthesis(PROFILE, 1.0, RATE, memory_budget_bytes=1 << 40)
+    with pytest.raises(InputError, match="needs a transform"):
+        nongaussian_synthesizer(PROFILE, base, None, seed=1, workers=2)
 
 
 def test_normals_drawn_for_another_band_are_drawn_again():

@@ -683,7 +683,8 @@ def nongaussian_synthesizer(profile: AsdProfile, plan: SynthesisPlan, transform=
     root = root_seed_sequence(seed)
     workers = check_workers(workers)
     executor = drawn = None
-    if workers > 1 and plan.mode == "periodic" and plan.channel_factors is None:
+    wanted = plan.transform if transform is None else transform
+    if wanted is not None and workers > 1 and plan.mode == "periodic" and plan.channel_factors is None:
         from concurrent.futures import ThreadPoolExecutor
 
         executor = ThreadPoolExecutor(max_workers=1, thread_name_prefix="vibsynth-draws")
