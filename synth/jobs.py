@@ -313,18 +313,19 @@ def prepare_drive(profile: AsdProfile, request: DriveRequest, refuse_when_full: 
     if refuse_when_full and not storage["fits"]:
         raise drivefile.space_refusal(request.output, storage)
     grms_lines = plan.line_variance**0.5
-    design = None
-    if transform is not None:
-        from vibsynth.generate import design as nongaussian  # on use: a Gaussian drive never loads scipy.special
-
-        plan, design = nongaussian.make_nongaussian_plan(profile, plan, transform)
+    design = synthesizer = None
+    seed = request_seed(request)
+    workers = default_workers() if request.workers is None else request.workers
+    if transform is not None:  # the design (scipy.special is loaded on use), the record's draws made meanwhile
+        synthesizer, design = pipeline.nongaussian_synthesizer(profile, plan, transform, seed=seed, workers=workers,
+                                                               mixed=mixed)
+        plan = synthesizer.plan
     if bursts:
         from vibsynth.generate.modulation import burst_plan
 
         plan = burst_plan(plan, profile.frequency_min_hz, request.kurtosis, request.burst_s)
-    seed = request_seed(request)
-    workers = default_workers() if request.workers is None else request.workers
-    synthesizer = pipeline.Synthesizer(plan, seed, workers, mixed=mixed)
+    if synthesizer is None:
+        synthesizer = pipeline.Synthesizer(plan, seed, workers, mixed=mixed)
     options = sidecar_options(request, names, kurtosis_model="bursts" if bursts else "transform",
                               burst_s=plan.modulation.burst_s if bursts else None)
     seed_derivation = SEED_DERIVATION + "; one standard normal pair per line"

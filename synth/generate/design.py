@@ -45,9 +45,12 @@ than 2^20 lines moves no line of a 2^24-sample record at 51.2 kHz by more than
 The design's own repeated work is done once: the target on a compensation
 grid, a compensation the pilot already made on the final grid for the final
 transform, and the pilot records' phases (the same fixed-seed phases at every
-pilot step).  Pilot records are made on worker threads (``workers``) and their
-power sums added in record order, so the design does not depend on the number
-of threads.
+pilot step; with ``workers > 1`` made on another thread while the first
+compensation runs).  Pilot records are made on worker threads (``workers``) and
+their power sums added in record order, so the design does not depend on the
+number of threads.  The compensated spectrum is interpolated onto the record's
+lines once, for the compensation the plan uses (the retention and pilot
+compensations need only their own grid).
 
 Scaling and the high-pass
 -------------------------
@@ -369,22 +372,36 @@ def _compensate_on_grid_once(profile: AsdProfile, plan: SynthesisPlan, transform
             "resolution",
         )
     result = compensate_spectrum(target, df, transform, **options)
+    return result, frame, exact_grid
+
+
+def _record_spectrum(plan: SynthesisPlan, result: CompensationResult, frame: int, exact_grid: bool) -> np.ndarray:
+    """The compensated spectrum on the record's grid (read-only, ``sum * df = 1``), from a compensation on ``frame``.
+
+    Made only for the compensation the plan uses: the retention and pilot
+    compensations need their Gaussian spectrum on their own grid alone.
+    """
     if exact_grid:
         spectrum = np.array(result.gaussian_psd_per_hz, dtype=float)
+        inside = None
     else:
+        target = result.target_asd_g2_per_hz
         band = target > 0
         factor = result.gaussian_psd_per_hz[band] / target[band]
-        coarse_hz = np.flatnonzero(band) * df
-        fine = np.array(plan.line_spectrum, dtype=float)
-        inside = np.flatnonzero(fine > 0)
-        fine[inside] *= np.interp(inside * plan.resolution_hz, coarse_hz, factor)
-        spectrum = fine
+        coarse_hz = np.flatnonzero(band) * (plan.rate_hz / frame)
+        lo, hi = plan._band  # every non-zero line of the plan's spectrum
+        inside = lo + np.flatnonzero(np.asarray(plan.line_spectrum)[lo:hi] > 0)
+        spectrum = np.array(plan.line_spectrum, dtype=float)
+        spectrum[inside] *= np.interp(inside * plan.resolution_hz, coarse_hz, factor)
     total = float(np.sum(spectrum)) * plan.resolution_hz
     if not (math.isfinite(total) and total > 0):
         raise InputError("the compensated spectrum has no power on the record's grid; use a finer resolution", "resolution")
-    spectrum /= total
+    if inside is None:
+        spectrum /= total
+    else:  # every other line is a zero, which the division keeps as it is
+        spectrum[inside[0] : inside[-1] + 1] /= total
     spectrum.setflags(write=False)
-    return result, spectrum, frame, exact_grid
+    return spectrum
 
 
 #: Samples of the pilot records that check a Hermite drive's moments after the high-pass.
@@ -400,7 +417,10 @@ def _pilot_phasors(frame: int, count: int, memo: _DesignMemo | None = None) -> l
     """Unit phasors ``exp(2 pi i phi)`` of the pilot records' lines (fixed seed; the same at every pilot step)."""
     key = (frame, count)
     if memo is not None and key in memo.phasors:
-        return memo.phasors[key]
+        found = memo.phasors[key]
+        if not isinstance(found, list):  # made ahead on another thread (design_nongaussian)
+            found = memo.phasors[key] = found.result()
+        return found
     rng = np.random.default_rng(0x5EED)
     phasors = [np.exp(2j * np.pi * rng.random(frame // 2 + 1)) for _ in range(count)]
     if memo is not None:
@@ -464,7 +484,7 @@ def _pilot_corrected(profile, plan, applied, requested, highpass, options, frame
     skewness, kurtosis = requested
     response = None
     for _ in range(_PILOT_STEPS):
-        result, _, grid, _ = _compensate_on_grid(profile, plan, applied, options, frame, memo)
+        result, grid, _ = _compensate_on_grid(profile, plan, applied, options, frame, memo)
         if response is None:
             response = highpass.record_response(grid)
         measured_s, measured_k = _pilot_moments(result.gaussian_psd_per_hz, grid, applied, response, memo=memo,
@@ -548,7 +568,14 @@ def design_nongaussian(profile: AsdProfile, plan: SynthesisPlan, transform, *, c
         # the retained shares are integrals over the whole spectrum: a coarser grid gives them to
         # many digits and keeps the planning of long periodic records fast
         frame = min(_compensation_frame_length(plan), _RETENTION_FRAME_LENGTH)
-        first, _, frame, _ = _compensate_on_grid(profile, plan, transform, compensation_options, frame, memo)
+        if workers > 1:  # the pilot records' phases do not depend on the compensation: made meanwhile
+            from concurrent.futures import ThreadPoolExecutor
+
+            count = max(1, _PILOT_SAMPLES // frame)
+            executor = ThreadPoolExecutor(max_workers=1, thread_name_prefix="vibsynth-pilot")
+            memo.phasors[(frame, count)] = executor.submit(_pilot_phasors, frame, count)
+            executor.shutdown(wait=False)
+        first, frame, _ = _compensate_on_grid(profile, plan, transform, compensation_options, frame, memo)
         p2, p3 = highpass_moment_retention(first.gaussian_psd_per_hz, highpass.record_response(frame))
         _, _, skewness, kurtosis = transform.moments()
         retention = (p2, p3)
@@ -560,7 +587,8 @@ def design_nongaussian(profile: AsdProfile, plan: SynthesisPlan, transform, *, c
             applied, requested = corrected, (float(skewness), float(kurtosis))
             applied = _pilot_corrected(profile, plan, applied, (float(skewness), float(kurtosis)), highpass,
                                        compensation_options, frame, memo, workers)
-    result, spectrum, frame, exact_grid = _compensate_on_grid(profile, plan, applied, compensation_options, None, memo)
+    result, frame, exact_grid = _compensate_on_grid(profile, plan, applied, compensation_options, None, memo)
+    spectrum = _record_spectrum(plan, result, frame, exact_grid)
     return NonGaussianDesign(
         transform=applied,
         line_spectrum=spectrum,

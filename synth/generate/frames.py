@@ -80,6 +80,13 @@ def line_amplitudes(line_spectrum, rate_hz: float, frame_length: int) -> np.ndar
 
 
 def _clean_line_spectrum(line_spectrum, frame_length: int) -> np.ndarray:
+    if _is_clean_constant(line_spectrum, frame_length):
+        # a read-only float64 array that owns its data (a plan's spectrum, or a design's) is shared, not copied:
+        # the same values, and a long record's planning skips a copy of millions of lines
+        spectrum = line_spectrum
+        if not math.isfinite(float(np.sum(spectrum))) or float(np.min(spectrum)) < 0:
+            raise InputError("line spectrum values must be finite and >= 0", "line_spectrum")
+        return spectrum
     spectrum = np.array(line_spectrum, dtype=float).ravel()
     if spectrum.size != frame_length // 2 + 1:
         raise InputError(
@@ -94,12 +101,39 @@ def _clean_line_spectrum(line_spectrum, frame_length: int) -> np.ndarray:
     return spectrum
 
 
+def _is_clean_constant(line_spectrum, frame_length: int) -> bool:
+    """True for a read-only 1-D float64 array owning its data, of ``N//2 + 1`` lines, with +0.0 at DC
+    (and Nyquist, for even N): :func:`_clean_line_spectrum` would return an equal copy of it."""
+    if not (isinstance(line_spectrum, np.ndarray) and line_spectrum.dtype == np.float64 and line_spectrum.ndim == 1
+            and line_spectrum.flags.owndata and not line_spectrum.flags.writeable
+            and line_spectrum.size == frame_length // 2 + 1):
+        return False
+    ends = line_spectrum[[0, -1]] if frame_length % 2 == 0 else line_spectrum[:1]
+    return not np.any(ends != 0.0) and not np.any(np.signbit(ends))
+
+
 def _band_of(amplitudes: np.ndarray) -> tuple[int, int]:
-    """Index range [lo, hi) holding every non-zero line."""
-    nonzero = np.flatnonzero(amplitudes)
-    if nonzero.size == 0:
+    """Index range [lo, hi) holding every non-zero line (NaN counts as non-zero, as for ``np.flatnonzero``)."""
+    values = np.asarray(amplitudes).ravel()
+    # scanned in cache-sized pieces from each end: a long record's band is a small part of its lines
+    step = _BAND_SCAN
+    for start in range(0, values.size, step):
+        found = np.flatnonzero(values[start : start + step] != 0)
+        if found.size:
+            lo = start + int(found[0])
+            break
+    else:
         return 0, 0
-    return int(nonzero[0]), int(nonzero[-1]) + 1
+    for stop in range(values.size, lo, -step):
+        start = max(stop - step, lo)
+        found = np.flatnonzero(values[start:stop] != 0)
+        if found.size:
+            return lo, start + int(found[-1]) + 1
+    raise AssertionError("unreachable: line lo is non-zero")
+
+
+#: Lines per piece that :func:`_band_of` scans at a time.
+_BAND_SCAN = 1 << 16
 
 
 def _draw_lines(rng: np.random.Generator, amplitudes: np.ndarray, amplitude: str, band=None) -> np.ndarray:
@@ -108,21 +142,40 @@ def _draw_lines(rng: np.random.Generator, amplitudes: np.ndarray, amplitude: str
     Every line draws its pair (so the draws do not depend on the spectrum);
     only lines inside ``band`` (the non-zero amplitudes) are then shaped.
     """
-    spectrum = np.empty(amplitudes.size, dtype=np.complex128)
+    band = _band_of(amplitudes) if band is None else band
+    return _shape_lines(_draw_normals(rng, amplitudes.size, band, amplitude), amplitudes, amplitude)
+
+
+def _draw_normals(rng: np.random.Generator, size: int, band: tuple[int, int], amplitude: str) -> tuple:
+    """The part of :func:`_draw_lines` that does not need the amplitudes: the normal pairs (zero outside
+    ``band``) and, for ``fixed``, their magnitudes on ``band`` (a zero pair made ``1 + 0i``).
+
+    Returns ``(spectrum, band, magnitude)`` (``magnitude`` None for ``rayleigh``) for :func:`_shape_lines`.
+    """
+    spectrum = np.empty(size, dtype=np.complex128)
     rng.standard_normal(out=spectrum.view(np.float64))
-    lo, hi = _band_of(amplitudes) if band is None else band
+    lo, hi = band
     spectrum[:lo] = 0.0
     spectrum[hi:] = 0.0
-    part = spectrum[lo:hi]
-    weights = amplitudes[lo:hi]
     if amplitude == "rayleigh":
-        part *= weights * math.sqrt(0.5)
-        return spectrum
+        return spectrum, (lo, hi), None
+    part = spectrum[lo:hi]
     magnitude = np.abs(part)
     zero = magnitude == 0.0
     if np.any(zero):  # probability zero; a phase of 0 keeps the amplitude exact
         part[zero] = 1.0
         magnitude[zero] = 1.0
+    return spectrum, (lo, hi), magnitude
+
+
+def _shape_lines(drawn: tuple, amplitudes: np.ndarray, amplitude: str) -> np.ndarray:
+    """Finish :func:`_draw_lines` from :func:`_draw_normals`' result (changed in place and returned)."""
+    spectrum, (lo, hi), magnitude = drawn
+    part = spectrum[lo:hi]
+    weights = amplitudes[lo:hi]
+    if amplitude == "rayleigh":
+        part *= weights * math.sqrt(0.5)
+        return spectrum
     np.divide(weights, magnitude, out=magnitude)
     part *= magnitude
     return spectrum

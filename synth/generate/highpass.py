@@ -13,7 +13,9 @@ chunk size a record is read in):
 :func:`periodic_highpass`
     a periodic record, exactly in the frequency domain (circular, so a looped
     record still loops); a long record has only its lowest lines computed and
-    changed (:mod:`vibsynth.generate.lowband`) instead of two whole-record FFTs;
+    changed (:mod:`vibsynth.generate.lowband`) instead of two whole-record FFTs,
+    and memoryless stages before and after it (a transform, the final scale)
+    can ride along in those passes over the record (``prepare``, ``finish``);
 :class:`PartitionedHighpass`
     a linear (Gaussian) overlap-add stream, by uniformly partitioned
     overlap-save: the FIR in partitions of P samples, FFTs of 2P that stay in
@@ -291,7 +293,8 @@ def partition_samples(highpass: SpillHighpass, hop: int) -> int:
     return min(max(block // HIGHPASS_PARTITIONS, min(MIN_HIGHPASS_PARTITION, int(hop))), block // 2)
 
 
-def periodic_highpass(y: np.ndarray, highpass: SpillHighpass, workers: int = 1) -> np.ndarray:
+def periodic_highpass(y: np.ndarray, highpass: SpillHighpass, workers: int = 1, prepare=None,
+                      finish=None) -> np.ndarray:
     """A periodic record high-passed exactly in the frequency domain (circular).
 
     Only the lines below the pass edge change (the response is 1 above it).  A
@@ -313,6 +316,17 @@ def periodic_highpass(y: np.ndarray, highpass: SpillHighpass, workers: int = 1) 
     workers : int
         Threads for the block moments of a long record (the samples do not
         depend on it).
+    prepare : callable, optional
+        A memoryless stage to apply to ``y`` (in place) before the filter:
+        ``prepare(stretch)`` changes a 1-D stretch of samples in place (e.g. a
+        transform).  A long record has it applied stretch by stretch as its
+        block moments are taken (one pass over the record instead of two);
+        the result is the same, bit for bit, as applying it to the whole
+        record first.
+    finish : callable, optional
+        A memoryless stage to apply (in place, the same way) to the filtered
+        record, e.g. the final scaling: a long record has it applied to each
+        stretch as the change of its lowest lines is added.
 
     Returns
     -------
@@ -339,13 +353,31 @@ def periodic_highpass(y: np.ndarray, highpass: SpillHighpass, workers: int = 1) 
     if plan is not None:
         if not (y.dtype == np.float64 and y.ndim == 1 and y.flags.c_contiguous and y.flags.writeable):
             y = np.array(y, dtype=np.float64).ravel()  # a contiguous copy: the same samples whatever the layout
-        change = lowband.low_lines(y, top, plan, workers)
+        change = lowband.low_lines(y, top, plan, workers, prepare)
         change *= gain - 1.0
-        return lowband.add_low_lines(y, change, plan, workers)
+        return lowband.add_low_lines(y, change, plan, workers, finish)
+    if prepare is not None:
+        _in_stretches(prepare, y, workers)
     spectrum = np.fft.rfft(y)
     del y
     spectrum[:top] *= gain
-    return np.fft.irfft(spectrum, n=samples)
+    y = np.fft.irfft(spectrum, n=samples)
+    if finish is not None:
+        _in_stretches(finish, y, workers)
+    return y
+
+
+#: Samples per stretch that a memoryless stage of :func:`periodic_highpass` is given on the worker threads.
+_STAGE_STRETCH = 1 << 20
+
+
+def _in_stretches(stage, y: np.ndarray, workers: int) -> None:
+    """``stage(y[a:b])`` for consecutive stretches of :data:`_STAGE_STRETCH` samples, on up to ``workers`` threads."""
+    from vibsynth.generate._threads import ordered_map
+
+    stretches = [slice(lo, lo + _STAGE_STRETCH) for lo in range(0, y.shape[0], _STAGE_STRETCH)]
+    for _ in ordered_map(lambda part: stage(y[part]), stretches, workers, workers):
+        pass
 
 
 def block_highpass(pair, block: int, lowpass_spectrum: np.ndarray | None) -> np.ndarray:

@@ -128,7 +128,7 @@ def _row_chunks(rows: int, step: int, workers: int) -> list[tuple[int, int]]:
     return [(lo, min(lo + per, rows)) for lo in range(0, rows, per)]
 
 
-def low_lines(y: np.ndarray, lines: int, plan: tuple[int, int], workers: int = 1) -> np.ndarray:
+def low_lines(y: np.ndarray, lines: int, plan: tuple[int, int], workers: int = 1, prepare=None) -> np.ndarray:
     """``scipy.fft.rfft(y)[:lines]`` from block moments (equal to rounding).
 
     Parameters
@@ -141,6 +141,12 @@ def low_lines(y: np.ndarray, lines: int, plan: tuple[int, int], workers: int = 1
         ``(L, P)`` from :func:`block_plan` for ``(N, lines)``.
     workers : int
         Threads (the result does not depend on it).
+    prepare : callable, optional
+        ``prepare(stretch)`` changes a stretch (a 1-D view) of ``y`` in place
+        just before its moments are taken, while it is in cache: a memoryless
+        (sample by sample) stage such as a transform, so that ``y`` ends up
+        changed exactly as a separate pass over it would change it and the
+        lines are those of the changed record.  Every sample is prepared once.
 
     Returns
     -------
@@ -169,6 +175,8 @@ def low_lines(y: np.ndarray, lines: int, plan: tuple[int, int], workers: int = 1
         lo, hi = chunk
         for start in range(lo, hi, step):
             stop = min(start + step, hi)
+            if prepare is not None:
+                prepare(y[start * block : stop * block])
             np.matmul(blocks[start:stop], powers, out=moments[start:stop])
 
     for _ in ordered_map(moments_of, _row_chunks(rows, step, workers), workers, workers):
@@ -183,7 +191,8 @@ def low_lines(y: np.ndarray, lines: int, plan: tuple[int, int], workers: int = 1
     return result
 
 
-def add_low_lines(y: np.ndarray, values: np.ndarray, plan: tuple[int, int], workers: int = 1) -> np.ndarray:
+def add_low_lines(y: np.ndarray, values: np.ndarray, plan: tuple[int, int], workers: int = 1,
+                  finish=None) -> np.ndarray:
     """Add ``scipy.fft.irfft(X, n=N)`` to ``y`` in place, X holding ``values`` on its lowest lines and 0 elsewhere.
 
     Parameters
@@ -197,6 +206,11 @@ def add_low_lines(y: np.ndarray, values: np.ndarray, plan: tuple[int, int], work
         ``(L, P)`` from :func:`block_plan` for ``(N, K)``.
     workers : int
         Threads (the result does not depend on it).
+    finish : callable, optional
+        ``finish(stretch)`` changes a stretch (a 1-D view) of ``y`` in place
+        just after the lines are added to it, while it is in cache: a
+        memoryless stage (such as a final scaling), applied exactly as a
+        separate pass over ``y`` would apply it.  Every sample is finished once.
 
     Returns
     -------
@@ -242,6 +256,8 @@ def add_low_lines(y: np.ndarray, values: np.ndarray, plan: tuple[int, int], work
             part = scratch[: stop - start]
             np.matmul(by_term[start:stop], powers, out=part)
             blocks[start:stop] += part
+            if finish is not None:
+                finish(y[start * block : stop * block])
 
     for _ in ordered_map(add_to, _row_chunks(rows, step, workers), workers, workers):
         pass

@@ -20,7 +20,13 @@ is the identity.
     root :class:`numpy.random.SeedSequence`).  Velocity and displacement
     columns are integrated from the same lines in the frequency domain.  A
     transformed record is high-passed exactly in the frequency domain
-    (circularly, so a looped record still loops seamlessly).
+    (circularly, so a looped record still loops seamlessly); its transform
+    and final scale are applied stretch by stretch inside the high-pass's
+    passes over the record.  The design of a non-Gaussian record does not
+    depend on the seed, nor its normal draws on the design:
+    :func:`nongaussian_synthesizer` (used by :func:`make_synthesizer`) draws
+    them on a second thread while the design runs.  The samples are the same,
+    bit for bit, as with every stage in turn.
 ``overlap-add``
     Independent frames of ``N`` samples, each multiplied by the sine window
     ``w[n] = sin(pi (n + 1/2) / N)``, laid every ``N/2`` samples with the first
@@ -84,7 +90,7 @@ import numpy as np
 
 from vibsynth.errors import InputError
 from vibsynth.generate._threads import check_workers, frame_workers, ordered_map
-from vibsynth.generate.frames import _draw_lines, raised_cosine_ramp, rest_taper
+from vibsynth.generate.frames import _draw_lines, _draw_normals, _shape_lines, raised_cosine_ramp, rest_taper
 from vibsynth.generate.highpass import PartitionedHighpass, block_highpass, periodic_highpass, smooth_bound_gain
 from vibsynth.generate.plan import (
     DEFAULT_MEMORY_BUDGET_BYTES,
@@ -97,7 +103,7 @@ from vibsynth.generate.seeds import FRAME_STREAM, PERIODIC_STREAM, child_generat
 from vibsynth.profile.asd import STANDARD_GRAVITY_M_S2, AsdProfile
 
 __all__ = ["BOUND_PASSES", "KURTOSIS_MODELS", "Synthesizer", "check_kurtosis_model", "generate_samples", "iter_chunks",
-           "make_synthesizer"]
+           "make_synthesizer", "nongaussian_synthesizer"]
 
 #: A clipped (bounded) drive alternates clip and high-pass this many more times after the first
 #: high-pass.  The high-pass removes the clip's spill below the band but lifts a few samples over the
@@ -172,6 +178,8 @@ class Synthesizer:
 
             self._mixed = MixedStage(mixed, plan.rate_hz, self.root)
         self._record: np.ndarray | None = None
+        # the periodic record's normal draws, made ahead on another thread (see nongaussian_synthesizer)
+        self._drawn = None
         self._envelope_knots = None
         highpass = plan.spill_highpass
         self._partitioned = None
@@ -208,6 +216,13 @@ class Synthesizer:
         """
         plan = self.plan
         if plan.mode == "periodic":
+            drawn, self._drawn = self._drawn, None  # used once: the lines are shaped in place
+            if drawn is not None and plan.channel_factors is None:
+                amplitudes = plan._stream_amplitudes  # made while the draws may still be running
+                drawn = drawn.result()
+                if drawn[0].size == amplitudes.size and drawn[1] == plan._band:
+                    return _shape_lines(drawn, amplitudes, plan.amplitude)
+                del drawn  # drawn for another band: draw again (the same normals)
             rng = child_generator(self.root, PERIODIC_STREAM)
         else:
             rng = child_generator(self.root, FRAME_STREAM, int(index))
@@ -307,11 +322,14 @@ class Synthesizer:
             self._modulate(columns[:, 0], 0)
             if plan.transform is not None:
                 y = columns[:, 0]
-                self._apply_transform(y)
+                transform, limit = plan.transform, plan.transform.peak_limit
                 if plan.spill_highpass is not None:
                     del columns  # a short record's inverse transform allocates the next; free this one first
-                    y = periodic_highpass(y, plan.spill_highpass, self.workers)
-                    limit = plan.transform.peak_limit
+                    # the transform (and, when unbounded, the final scale) applied stretch by stretch
+                    # inside the high-pass's passes over the record: the same samples, fewer passes
+                    y = periodic_highpass(y, plan.spill_highpass, self.workers,
+                                          prepare=lambda stretch: transform.apply(stretch, out=stretch),
+                                          finish=self._finish_transformed if limit is None else None)
                     if limit is not None:
                         for _ in range(BOUND_PASSES):  # alternating projections, see BOUND_PASSES
                             np.clip(y, -limit, limit, out=y)
@@ -321,7 +339,11 @@ class Synthesizer:
                         padded = np.concatenate((y[-w:], y, y[:w]))
                         y *= smooth_bound_gain(padded, limit, w, w, w + y.size)
                         del padded
-                columns = self._finish_transformed(y).reshape(-1, 1)
+                        self._finish_transformed(y)
+                else:
+                    self._apply_transform(y)
+                    self._finish_transformed(y)
+                columns = y.reshape(-1, 1)
             elif plan.spill_highpass is not None:
                 columns = periodic_highpass(columns[:, 0], plan.spill_highpass, self.workers).reshape(-1, 1)
             self._ramp(columns, 0)
@@ -682,14 +704,88 @@ def make_synthesizer(profile: AsdProfile, duration_s: float | None, rate_hz: flo
                      ramp_in_s=ramp, ramp_out_s=ramp, quantities=names, memory_budget_bytes=memory_budget_bytes,
                      transform=transform, rest_taper_s=rest_taper_s)
     if transform is not None:
-        from vibsynth.generate.design import make_nongaussian_plan
-
-        plan, _ = make_nongaussian_plan(profile, plan, transform)
+        return nongaussian_synthesizer(profile, plan, transform, seed=seed, workers=workers, mixed=mixed)[0], single
     if bursts:
         from vibsynth.generate.modulation import burst_plan
 
         plan = burst_plan(plan, profile.frequency_min_hz, kurtosis, burst_s)
     return Synthesizer(plan, seed, workers, mixed=mixed), single
+
+
+def nongaussian_synthesizer(profile: AsdProfile, plan: SynthesisPlan, transform=None, *, seed, workers: int = 1,
+                            mixed=None):
+    """Design a non-Gaussian plan and make its synthesizer; a periodic record's normals are drawn meanwhile.
+
+    The same plan, design and samples, bit for bit, as
+    :func:`vibsynth.generate.design.make_nongaussian_plan` followed by
+    :class:`Synthesizer`.  The design does not depend on the seed and the
+    record's standard normal draws (and, for fixed amplitudes, their
+    magnitudes) do not depend on the design, so with ``workers >= 2`` a
+    periodic single-channel record has them made on a second thread while the
+    design runs; the lines are then finished exactly as
+    :func:`vibsynth.generate.frames._draw_lines` finishes them (the amplitude
+    divided by the magnitude, times the pair).  Should the design's band differ
+    from the Gaussian plan's, the normals are drawn again.
+
+    Parameters
+    ----------
+    profile : AsdProfile
+        Target ASD, g^2/Hz.
+    plan : SynthesisPlan
+        The Gaussian plan of the record (as for :func:`make_nongaussian_plan`).
+    transform : MemorylessTransform, optional
+        The requested transform; default ``plan.transform``.
+    seed : int, numpy.random.SeedSequence or numpy.random.Generator
+        See :func:`vibsynth.generate.seeds.root_seed_sequence`.
+    workers : int
+        Threads (1: everything in the calling thread); the samples do not depend on it.
+    mixed : vibsynth.profile.mixed.MixedParts, optional
+        As for :class:`Synthesizer`.
+
+    Returns
+    -------
+    (Synthesizer, NonGaussianDesign)
+        The synthesizer (its plan has the design's warnings, not issued) and the design.
+
+    Examples
+    --------
+    >>> from vibsynth.generate.plan import plan_synthesis
+    >>> from vibsynth.transforms.choice import plan_transform
+    >>> profile = AsdProfile([20, 40, 600, 1000], [0.01, 0.04, 0.04, 0.01])
+    >>> base = plan_synthesis(profile, 4.0, 4096.0)
+    >>> synthesizer, design = nongaussian_synthesizer(profile, base, plan_transform(kurtosis=5.0), seed=1, workers=2)
+    >>> synthesizer.plan.transform is design.transform, synthesizer.samples().shape
+    (True, (16384, 1))
+
+    References
+    ----------
+    Winterstein (1988); Yamazaki & Shinozuka (1988); Shinozuka & Jan (1972); see
+    :mod:`vibsynth.generate.design`.
+    """
+    from vibsynth.generate.design import make_nongaussian_plan
+
+    root = root_seed_sequence(seed)
+    workers = check_workers(workers)
+    executor = drawn = None
+    wanted = plan.transform if transform is None else transform
+    if wanted is not None and workers > 1 and plan.mode == "periodic" and plan.channel_factors is None:
+        from concurrent.futures import ThreadPoolExecutor
+
+        executor = ThreadPoolExecutor(max_workers=1, thread_name_prefix="vibsynth-draws")
+        drawn = executor.submit(_draw_normals, child_generator(root, PERIODIC_STREAM), plan.frame_length // 2 + 1,
+                                plan._band, plan.amplitude)
+    try:
+        planned, design = make_nongaussian_plan(profile, plan, transform)
+        synthesizer = Synthesizer(planned, root, workers, mixed=mixed)
+    except BaseException:
+        if drawn is not None:
+            drawn.cancel()
+        raise
+    finally:
+        if executor is not None:
+            executor.shutdown(wait=False)
+    synthesizer._drawn = drawn
+    return synthesizer, design
 
 
 #: The ways a kurtosis target is reached: a memoryless transform of the stream, or a burst envelope.
