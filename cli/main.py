@@ -196,7 +196,8 @@ def main(argv: list[str] | None = None) -> int:
             click.echo(f"{ctx_name}: error: {_one_line(error.format_message())} (see '{ctx_name} --help')", err=True)
             status = 2
         except OSError as error:
-            where = f"{error.filename}: " if getattr(error, "filename", None) else ""
+            name = str(getattr(error, "filename", None) or "")
+            where = f"{name if name.isprintable() else repr(name)}: " if name else ""
             click.echo(f"{prog}: error: {where}{_one_line(error.strerror or error)}", err=True)
             status = 2
         finally:

@@ -32,7 +32,9 @@ class InputError(ValueError):
 
     def one_line(self) -> str:
         """The whole problem as a single line: ``source: location: message``."""
-        parts = [p for p in (self.source, self.location) if p]
+        # a file or field name with a line break or other control character (a path typed as "\r") is
+        # shown escaped, as Python writes it, so the problem stays on one line
+        parts = [p if str(p).isprintable() else repr(str(p)) for p in (self.source, self.location) if p]
         text = " ".join(str(self.message).split())
         return ": ".join(parts + [text]) if parts else text
 

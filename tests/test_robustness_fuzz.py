@@ -439,3 +439,15 @@ def test_huge_memory_budget_is_honoured_or_refused_never_switched(tmp_path, prof
     assert "memory" in err and "--memory-budget" in err
     assert not (tmp_path / "f.npy").exists()
     assert sorted(os.listdir(tmp_path)) == sorted(["d.npy", "d.npy.json", "e.npy", "e.npy.json"])
+
+
+@pytest.mark.parametrize("name", ["\r", "a\nb", "tab\there"])
+def test_a_name_with_control_characters_is_escaped_in_the_one_error_line(tmp_path, name):
+    """Found by test_verify_option_parsing: `--profile '\\r'` printed the carriage return itself, which
+    split the error over two lines.  The name is shown escaped, as Python's repr writes it."""
+    for argv in (["info", name], ["generate", name, "-o", tmp_path / "d.npy", "--duration", 1, "--rate", 1024]):
+        status, out, err = _quiet_main(argv)
+        lines = err.strip().splitlines()
+        assert status == 2 and len(lines) == 1 and lines[0].startswith("vibsynth")
+        assert repr(name) in lines[0]
+    assert not any(tmp_path.iterdir())
