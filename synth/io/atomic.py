@@ -152,6 +152,13 @@ class AtomicFile:
     ----------
     destination : str or os.PathLike
         The final file.  Stale partials of it are removed first.
+    adopt : str or os.PathLike, optional
+        A scratch file of this process in the destination's folder (a tagged
+        partial, such as a drive's sample cache) that becomes the temporary:
+        it is renamed to :attr:`temporary` and from then on removed or
+        published like it, so a writer may overwrite its contents (and reuse
+        its pages) instead of starting from an empty file.  Removed if the
+        temporary cannot be made.
 
     Notes
     -----
@@ -176,11 +183,23 @@ class AtomicFile:
     POSIX rename(2), fsync(2).
     """
 
-    def __init__(self, destination):
+    def __init__(self, destination, adopt=None):
         self.destination = Path(destination)
-        remove_stale_partials(self.destination)
-        self.temporary = partial_path(self.destination)
         self.committed = False
+        try:
+            remove_stale_partials(self.destination)
+            self.temporary = partial_path(self.destination)
+        except BaseException:
+            if adopt is not None:
+                _unlink_quietly(adopt)
+            raise
+        if adopt is not None:
+            try:
+                os.replace(adopt, self.temporary)
+            except BaseException:
+                _unlink_quietly(adopt)
+                self.discard()
+                raise
 
     def commit(self, sync: bool = True) -> Path:
         """Flush the temporary file to disk and rename it over the destination; returns the destination."""
@@ -204,6 +223,13 @@ class AtomicFile:
 
     def __exit__(self, kind, value, traceback) -> None:
         self.discard()
+
+
+def _unlink_quietly(path) -> None:
+    try:
+        os.unlink(path)
+    except OSError:
+        pass
 
 
 def commit_all(files) -> list:
