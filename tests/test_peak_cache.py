@@ -274,8 +274,8 @@ def test_a_cache_that_cannot_be_written_falls_back_to_recomputing(tmp_path, prof
     # the disk fills on the first chunk, or later (the error then shows at a later write or at the close)
     spy = _Spy(monkeypatch)
     room = int(room_chunks * 8 * jobs.CHUNK_SAMPLES)
-    monkeypatch.setattr(samplecache, "open", lambda path, mode="r": _SmallDisk(path, mode, room) if "w" in mode
-                        else open(path, mode), raising=False)
+    monkeypatch.setattr(samplecache, "open", lambda path, mode="r": _SmallDisk(path, mode, room)
+                        if "w" in mode or "+" in mode else open(path, mode), raising=False)  # opened for writing
     (tmp_path / "a").mkdir()
     (tmp_path / "b").mkdir()
     with pytest.warns(VibsynthWarning, match="made again for the second pass"):

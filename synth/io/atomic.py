@@ -156,6 +156,13 @@ class AtomicFile:
     ----------
     destination : str or os.PathLike
         The final file.  Stale partials of it are removed first.
+    adopt : str or os.PathLike, optional
+        A scratch file of this process in the destination's folder (a tagged
+        partial, such as a drive's sample cache) that becomes the temporary:
+        it is renamed to :attr:`temporary` and from then on removed or
+        published like it, so a writer may overwrite its contents (and reuse
+        its pages) instead of starting from an empty file.  Removed if the
+        temporary cannot be made.
 
     Notes
     -----
@@ -180,13 +187,26 @@ class AtomicFile:
     POSIX rename(2), fsync(2).
     """
 
-    def __init__(self, destination):
+    def __init__(self, destination, adopt=None):
         self.destination = Path(destination)
-        remove_stale_partials(self.destination)
-        self.temporary = partial_path(self.destination)
         self.committed = False
         self._watch: int | None = None  # a descriptor of the temporary, for write_back_ahead
         self._written_back = 0
+        self._adopted = adopt is not None
+        try:
+            remove_stale_partials(self.destination)
+            self.temporary = partial_path(self.destination)
+        except BaseException:
+            if adopt is not None:
+                _unlink_quietly(adopt)
+            raise
+        if adopt is not None:
+            try:
+                os.replace(adopt, self.temporary)
+            except BaseException:
+                _unlink_quietly(adopt)
+                self.discard()
+                raise
 
     def write_back_ahead(self) -> int:
         """Start the kernel's write-back of what the temporary file has grown by, every :data:`WRITE_BACK_STEP_BYTES`.
@@ -197,7 +217,8 @@ class AtomicFile:
         waits only for the last stretch (a 128 MB drive: 60-80 ms of fsync
         down to a few ms on the machine this was measured on).  Advisory and
         harmless: pages not yet written stay cached; on systems without
-        ``posix_fadvise`` it does nothing.
+        ``posix_fadvise``, and for an adopted file (written over what it
+        held: its size says nothing of what is new), it does nothing.
 
         Returns
         -------
@@ -219,7 +240,7 @@ class AtomicFile:
         the range and drops only pages already clean).
         """
         advise = getattr(os, "posix_fadvise", None)
-        if advise is None or self.committed:
+        if advise is None or self.committed or self._adopted:  # an adopted file is as long as it was from the start
             return self._written_back
         try:
             if self._watch is None:
@@ -261,6 +282,13 @@ class AtomicFile:
 
     def __exit__(self, kind, value, traceback) -> None:
         self.discard()
+
+
+def _unlink_quietly(path) -> None:
+    try:
+        os.unlink(path)
+    except OSError:
+        pass
 
 
 def commit_all(files) -> list:

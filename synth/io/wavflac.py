@@ -112,6 +112,15 @@ class AudioWriter:
         Whole-number sample rate, Hz.
     scale : float
         g value of sample 1.0.
+    channels : int
+        Channels (columns of each chunk).
+    overwrite_behind : callable, optional
+        ``temporary`` already holds other data (a sample cache being read,
+        :meth:`vibsynth.io.samplecache.SampleCache.hand_over`) and is
+        overwritten from its start instead of emptied: a callable returning
+        how many of its bytes have been read and may be overwritten (see
+        :class:`DirectWavWriter`).  Mono .wav written directly only
+        (:func:`can_write_directly`).
 
     Examples
     --------
@@ -127,19 +136,35 @@ class AudioWriter:
     """
 
     def __init__(self, temporary: Path, where: str, file_format: str, subtype: str, rate_hz: float, scale: float,
-                 channels: int = 1):
+                 channels: int = 1, overwrite_behind=None):
         self.temporary, self.where, self.format, self.subtype = Path(temporary), where, file_format, subtype
         self.rate_hz, self.scale = float(rate_hz), float(scale)
         self.channels = int(channels)
+        self._handle = None
+        self._direct = None
         import soundfile
 
+        rate = int(round(self.rate_hz))
         try:
-            self._handle = soundfile.SoundFile(
-                str(self.temporary), mode="w", samplerate=int(round(self.rate_hz)), channels=int(channels),
-                subtype=SOUNDFILE_SUBTYPE[subtype], format=file_format.upper(),
-            )
+            if overwrite_behind is not None:
+                if not can_write_directly(file_format, subtype, rate, self.channels):
+                    raise ValueError(f"only a mono .wav is written over an existing file, not .{file_format} ({subtype})")
+                self._direct = DirectWavWriter(open(self.temporary, "r+b", buffering=0), subtype, rate,
+                                               overwrite_behind)
+            elif can_write_directly(file_format, subtype, rate, self.channels):
+                self._direct = DirectWavWriter(open(self.temporary, "wb", buffering=0), subtype, rate)
+            else:
+                self._handle = soundfile.SoundFile(
+                    str(self.temporary), mode="w", samplerate=rate, channels=int(channels),
+                    subtype=SOUNDFILE_SUBTYPE[subtype], format=file_format.upper(),
+                )
         except (RuntimeError, soundfile.LibsndfileError, ValueError) as error:
             raise InputError(f"cannot write .{file_format} ({subtype}) at {self.rate_hz:g} Hz: {error}", where) from None
+
+    @property
+    def direct(self) -> bool:
+        """True when the .wav bytes are written by :class:`DirectWavWriter` (mono .wav), False for libsndfile."""
+        return self._direct is not None
 
     def _refuse(self, values: np.ndarray, normalised: np.ndarray, limit: float, written: int) -> None:
         over = np.flatnonzero(~(np.abs(normalised) <= limit))
@@ -153,7 +178,7 @@ class AudioWriter:
                 self.where,
             )
 
-    def encode(self, values: np.ndarray, written: int) -> np.ndarray:
+    def encode(self, values: np.ndarray, written: int):
         """Physical values (g), shape (m, channels), as the samples the file stores; nothing is written.
 
         ``written`` samples come before these (for messages).  Depends only on
@@ -162,9 +187,11 @@ class AudioWriter:
 
         Returns
         -------
-        numpy.ndarray
+        numpy.ndarray or EncodedWav
             float32 (``float``), int16 (``pcm16``) or left-justified int32
-            (``pcm24``), shape (m,) or (m, channels).
+            (``pcm24``), shape (m,) or (m, channels), for libsndfile; for a
+            direct .wav the little-endian bytes of the data chunk with the
+            chunk's float peak (:class:`EncodedWav`).
 
         Raises
         ------
@@ -172,21 +199,32 @@ class AudioWriter:
             A value beyond full scale (never clipped).
         """
         values = values[:, 0] if self.channels == 1 else np.ascontiguousarray(values)
-        with np.errstate(over="ignore"):  # a value beyond full scale is refused just below
+        with np.errstate(over="ignore", invalid="ignore"):  # a value beyond full scale is refused just below
             if self.subtype == "float":
                 normalised = (values / self.scale).astype(np.float32)
-                self._refuse(values, normalised, 1.0, written)
+                if normalised.size and not (normalised.max() <= 1.0 and -normalised.min() <= 1.0):
+                    self._refuse(values, normalised, 1.0, written)
+                if self._direct is not None:
+                    return self._direct.encode_float(normalised)
                 return normalised
             bits = PCM_BITS[self.subtype]
-            counts = np.rint(values * (2.0 ** (bits - 1) / self.scale))
-        self._refuse(values, counts / 2.0 ** (bits - 1), (2 ** (bits - 1) - 1) / 2.0 ** (bits - 1), written)
+            counts = quantize(values, 2.0 ** (bits - 1) / self.scale)
+            top = 2 ** (bits - 1) - 1
+            if counts.size and not (counts.max() <= top and -counts.min() <= top):
+                self._refuse(values, counts / 2.0 ** (bits - 1), top / 2.0 ** (bits - 1), written)
+        if self._direct is not None:
+            return self._direct.encode_counts(counts)
         if bits == 16:
             return counts.astype(np.int16)
-        return counts.astype(np.int32) << 8  # libsndfile stores the top 24 bits of a left-justified int32
+        counts *= 256.0  # libsndfile stores the top 24 bits of a left-justified int32 (exact: a power of two)
+        return counts.astype(np.int32)
 
-    def write_encoded(self, samples: np.ndarray) -> None:
-        """Append samples made by :meth:`encode` (libsndfile encodes them; the interpreter lock is released)."""
-        self._handle.write(samples)
+    def write_encoded(self, samples) -> None:
+        """Append samples made by :meth:`encode` (libsndfile or the direct writer; the interpreter lock is released)."""
+        if self._direct is not None:
+            self._direct.write(samples)
+        else:
+            self._handle.write(samples)
 
     def write(self, values: np.ndarray, written: int) -> None:
         """Append physical values (g), shape (m, channels); ``written`` samples came before (for messages)."""
@@ -194,6 +232,12 @@ class AudioWriter:
 
     def close(self) -> None:
         """Close the file (idempotent)."""
+        if self._direct is not None:
+            direct, self._direct = self._direct, None
+            try:
+                direct.finish()
+            finally:
+                direct.handle.close()
         if self._handle is not None:
             handle, self._handle = self._handle, None
             handle.close()
@@ -202,6 +246,286 @@ class AudioWriter:
         """After closing: zero the PEAK chunk's time stamp of a .wav so equal samples give equal bytes."""
         if self.format == "wav":
             zero_peak_time_stamp(self.temporary)
+
+
+#: Added to and taken from a float64 to round it to an integer, half to even (exact for |x| < 2^51).
+_ROUNDING_SHIFT = 1.5 * 2.0**52
+
+
+def quantize(values: np.ndarray, factor: float) -> np.ndarray:
+    """``numpy.rint(values x factor)`` as a new float64 array, in three cheap passes.
+
+    Adding and subtracting 1.5 x 2^52 rounds a float64 of magnitude below
+    2^51 to the nearest integer, ties to even (IEEE 754 round-to-nearest
+    arithmetic), exactly as ``numpy.rint`` does (up to the sign of a zero);
+    larger magnitudes come out within a few units of the product, so they
+    stay beyond any PCM full scale and are refused as before.  Much faster
+    than ``numpy.rint`` on machines where that is not vectorised.
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        Physical values (g), float64.
+    factor : float
+        Counts per g.
+
+    Returns
+    -------
+    numpy.ndarray
+        float64 counts (whole numbers).
+
+    Examples
+    --------
+    >>> quantize(np.array([0.5, 1.5, -2.5, 2.6]), 1.0).tolist()
+    [0.0, 2.0, -2.0, 3.0]
+
+    References
+    ----------
+    IEEE 754-2008, 4.3.1 (round to nearest, ties to even); D. Goldberg, "What every computer
+    scientist should know about floating-point arithmetic", ACM Computing Surveys 23(1), 1991.
+    """
+    counts = np.multiply(values, factor)
+    counts += _ROUNDING_SHIFT
+    counts -= _ROUNDING_SHIFT
+    return counts
+
+
+class EncodedWav:
+    """A chunk of a direct .wav's data: its bytes, and (float) its largest |sample| and where it first occurs.
+
+    Examples
+    --------
+    >>> EncodedWav(b"", 0.0, 0, 0).count
+    0
+
+    References
+    ----------
+    RIFF WAVE PEAK chunk.
+    """
+
+    __slots__ = ("data", "peak", "peak_index", "count")
+
+    def __init__(self, data, peak: float, peak_index: int, count: int):
+        self.data, self.peak, self.peak_index, self.count = data, peak, peak_index, count
+
+
+class DirectWavWriter:
+    """Write a mono RIFF WAVE file byte for byte as libsndfile would, without its per-sample conversion.
+
+    The header is libsndfile's own (written once for no samples, its PEAK time
+    stamp zeroed); the sizes, the ``fact`` sample count and the PEAK value and
+    position are filled in at :meth:`finish`, the samples are written as the
+    little-endian bytes of the data chunk.  :func:`direct_wav_matches` checks
+    the result against libsndfile before the writer is used.
+
+    Parameters
+    ----------
+    handle : binary file
+        Unbuffered, writable, seekable (an ``open(path, "wb", buffering=0)`` or
+        an ``io.BytesIO``), at its start.
+    subtype : {"float", "pcm24", "pcm16"}
+    rate_hz : int
+        Sample rate, Hz.
+    overwrite_behind : callable, optional
+        The handle's file holds other data that is read while this writer
+        writes over it (an ``open(path, "r+b", buffering=0)``): returns how
+        many of its leading bytes have been read.  A write that would reach
+        beyond is refused (RuntimeError) instead of destroying unread data;
+        :meth:`finish` cuts the file after the data chunk.
+
+    Examples
+    --------
+    >>> import io, numpy as np
+    >>> buffer = io.BytesIO()
+    >>> writer = DirectWavWriter(buffer, "pcm16", 8000)
+    >>> writer.write(writer.encode_counts(np.array([1.0, -2.0])))
+    >>> writer.finish()
+    >>> buffer.getvalue()[-4:].hex()
+    '0100feff'
+
+    References
+    ----------
+    Microsoft/IBM RIFF WAVE format (fmt, fact, PEAK and data chunks); libsndfile's
+    WAV writer (float PEAK: the largest |sample| and its first position).
+    """
+
+    def __init__(self, handle, subtype: str, rate_hz: int, overwrite_behind=None):
+        self.handle, self.subtype = handle, subtype
+        self.header, self._fields = _wav_header_template(subtype, int(rate_hz))
+        self.data_bytes = 0
+        self.samples = 0
+        self.peak = 0.0
+        self.peak_position = 0
+        self._behind = overwrite_behind
+        self.handle.seek(len(self.header))  # the header is written last, when its sizes and PEAK are known
+
+    def encode_float(self, normalised: np.ndarray) -> EncodedWav:
+        """float32 samples (shape (m,)) as data bytes, with their largest |sample| and its first index."""
+        data = normalised.astype("<f4", copy=False)
+        if not data.size:
+            return EncodedWav(data, 0.0, 0, 0)
+        magnitude = np.abs(data)
+        index = int(np.argmax(magnitude))
+        return EncodedWav(data, float(magnitude[index]), index, data.size)
+
+    def encode_counts(self, counts: np.ndarray) -> EncodedWav:
+        """Whole-number float64 counts (shape (m,), within the subtype's range) as data bytes."""
+        if self.subtype == "pcm16":
+            return EncodedWav(counts.astype("<i2"), 0.0, 0, counts.size)
+        packed = counts.astype("<i4").view(np.uint8).reshape(-1, 4)[:, :3]  # low three bytes, little-endian
+        return EncodedWav(np.ascontiguousarray(packed), 0.0, 0, counts.size)
+
+    def _write(self, data) -> None:
+        view = memoryview(data).cast("B")
+        if self._behind is not None and self.handle.tell() + view.nbytes > self._behind():
+            raise RuntimeError(f"the .wav writer would overwrite bytes not yet read ({self.handle.tell() + view.nbytes} "
+                               f"> {self._behind()})")
+        while view.nbytes:
+            done = self.handle.write(view)
+            if done is None:  # pragma: no cover - only non-blocking files return None
+                raise OSError("the file took no bytes")
+            view = view[done:]
+
+    def write(self, chunk: EncodedWav) -> None:
+        """Append a chunk made by :meth:`encode_float` or :meth:`encode_counts` (in order)."""
+        if chunk.count and chunk.peak > self.peak:  # strictly larger: the first position of the largest stays
+            self.peak, self.peak_position = chunk.peak, self.samples + chunk.peak_index
+        self._write(chunk.data)
+        self.data_bytes += memoryview(chunk.data).nbytes
+        self.samples += chunk.count
+
+    def finish(self) -> None:
+        """Pad the data chunk to an even length, write the final header, cut what follows (the handle stays open)."""
+        if self.data_bytes % 2:
+            self._write(b"\0")
+        header = bytearray(self.header)
+        fields = self._fields
+        header[4:8] = (len(self.header) + self.data_bytes + self.data_bytes % 2 - 8).to_bytes(4, "little")
+        header[fields["data"]:fields["data"] + 4] = self.data_bytes.to_bytes(4, "little")
+        if "fact" in fields:
+            header[fields["fact"]:fields["fact"] + 4] = self.samples.to_bytes(4, "little")
+        if "PEAK" in fields:
+            offset = fields["PEAK"] + 8  # after the version and the time stamp
+            header[offset:offset + 4] = np.array(self.peak, "<f4").tobytes()
+            header[offset + 4:offset + 8] = self.peak_position.to_bytes(4, "little")
+        end = self.handle.tell()
+        self.handle.seek(0)
+        self._write(header)
+        self.handle.truncate(end)  # an overwritten file's older bytes beyond the data (nothing on a fresh file)
+        self.handle.seek(end)
+
+
+def _wav_header_template(subtype: str, rate_hz: int) -> tuple[bytes, dict]:
+    """libsndfile's mono .wav header for no samples (PEAK time stamp zeroed), and the offsets of its fields.
+
+    Offsets: ``data`` (data size), ``fact`` (sample count), ``PEAK`` (chunk
+    body); the header ends where the samples begin.
+    """
+    import soundfile
+
+    buffer = io.BytesIO()
+    with soundfile.SoundFile(buffer, mode="w", samplerate=rate_hz, channels=1, format="WAV",
+                             subtype=SOUNDFILE_SUBTYPE[subtype]):
+        pass
+    header = bytearray(buffer.getvalue())
+    if header[:4] != b"RIFF" or header[8:12] != b"WAVE":
+        raise ValueError("libsndfile wrote no RIFF WAVE header")
+    fields, position = {}, 12
+    while position + 8 <= len(header):
+        name, size = bytes(header[position:position + 4]).decode("latin-1"), int.from_bytes(header[position + 4:position + 8], "little")
+        fields[name] = position + 8 if name != "data" else position + 4
+        if name == "data":
+            if position + 8 != len(header):
+                raise ValueError("libsndfile's empty .wav has bytes after the data chunk header")
+            break
+        position += 8 + size + size % 2
+    if "data" not in fields:
+        raise ValueError("libsndfile's empty .wav has no data chunk")
+    if "PEAK" in fields:
+        header[fields["PEAK"] + 4:fields["PEAK"] + 8] = bytes(4)  # the time stamp, as zero_peak_time_stamp leaves it
+    return bytes(header), fields
+
+
+_DIRECT_WAV_CHECKED: dict = {}
+
+
+def can_write_directly(file_format: str, subtype: str, rate_hz: int, channels: int = 1) -> bool:
+    """Whether a file is written by :class:`DirectWavWriter`: a mono .wav whose bytes match libsndfile's.
+
+    Examples
+    --------
+    >>> can_write_directly("flac", "pcm24", 8000)
+    False
+
+    References
+    ----------
+    See :func:`direct_wav_matches`.
+    """
+    return file_format == "wav" and int(channels) == 1 and direct_wav_matches(subtype, int(rate_hz))
+
+
+
+def direct_wav_matches(subtype: str, rate_hz: int = 8000) -> bool:
+    """Whether :class:`DirectWavWriter` writes the same bytes as libsndfile for this subtype and rate.
+
+    Checked once per (subtype, rate) in memory on a short record with a
+    repeated peak, a negative peak and an odd byte count, in three chunks;
+    when anything differs (another libsndfile), .wav files are written by
+    libsndfile.
+
+    Examples
+    --------
+    >>> direct_wav_matches("pcm16", 8000) in (True, False)
+    True
+
+    References
+    ----------
+    libsndfile ``sf_write_float`` / ``sf_write_int`` / ``sf_write_short`` (WAV).
+    """
+    key = (subtype, int(rate_hz))
+    if key not in _DIRECT_WAV_CHECKED:
+        _DIRECT_WAV_CHECKED[key] = _direct_wav_check(subtype, int(rate_hz))
+    return _DIRECT_WAV_CHECKED[key]
+
+
+def _direct_wav_check(subtype: str, rate_hz: int) -> bool:
+    import soundfile
+
+    values = np.random.default_rng(20261204).uniform(-0.9, 0.9, 1001)
+    values[[7, 400, 905]] = (-0.95, 0.95, -0.95)  # the largest |value|, first negative, repeated in later chunks
+    try:
+        reference = io.BytesIO()
+        with soundfile.SoundFile(reference, mode="w", samplerate=rate_hz, channels=1, format="WAV",
+                                 subtype=SOUNDFILE_SUBTYPE[subtype]) as handle:
+            direct = io.BytesIO()
+            writer = DirectWavWriter(direct, subtype, rate_hz)
+            for part in np.split(values, [300, 700]):
+                if subtype == "float":
+                    samples = part.astype(np.float32)
+                    handle.write(samples)
+                    writer.write(writer.encode_float(samples))
+                else:
+                    counts = quantize(part, 2.0 ** (PCM_BITS[subtype] - 1))
+                    handle.write(counts.astype(np.int16) if subtype == "pcm16" else counts.astype(np.int32) << 8)
+                    writer.write(writer.encode_counts(counts))
+        writer.finish()
+    except Exception:  # noqa: BLE001 - any surprise means: leave the writing to libsndfile
+        return False
+    expected = bytearray(reference.getvalue())
+    if subtype == "float":
+        _zero_peak_time_stamp_bytes(expected)
+    return bytes(expected) == direct.getvalue()
+
+
+def _zero_peak_time_stamp_bytes(data: bytearray) -> None:
+    """:func:`zero_peak_time_stamp` on a .wav held in memory."""
+    position = 12
+    while position + 8 <= len(data) and data[position:position + 4] != b"data":
+        size = int.from_bytes(data[position + 4:position + 8], "little")
+        if data[position:position + 4] == b"PEAK" and size >= 8:
+            data[position + 12:position + 16] = bytes(4)
+            return
+        position += 8 + size + size % 2
 
 
 def zero_peak_time_stamp(path: Path) -> None:
