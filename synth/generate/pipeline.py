@@ -126,7 +126,8 @@ _TRANSFORM_STRETCH = 1 << 20
 #: blocks, each whole on one thread (frames, filter transforms and products): at least this many
 #: blocks per stretch (a stretch makes again the few stream pieces its first block's filter reads) ...
 _SPAN_MIN_BLOCKS = 32
-#: ... and at most this many bytes of output per stretch (one per thread in the making, one being read).
+#: ... and at most this many bytes of output per stretch (one per thread in the making, one made ahead,
+#: one being read: 24 MB on 2 threads, whatever the duration).
 _SPAN_BYTES = 6 * 2**20
 
 
@@ -507,10 +508,10 @@ class Synthesizer:
                 return
             # stretches of blocks, each made whole (frames, filter) on one worker thread
             self._cache_shared()
-            # the stretches' arrays are reused (one per thread in the making, one being read): no large
+            # the stretches' arrays are reused (one per thread in the making, one ahead, one being read): no large
             # allocation per stretch for the allocator to keep
             spare: collections.deque = collections.deque()
-            runs = ordered_map(lambda span: self._span_record(span, spare), spans, self.workers, self.workers)
+            runs = ordered_map(lambda span: self._span_record(span, spare), spans, self.workers, self.workers + 1)
             try:
                 for span, record in zip(spans, runs):
                     for lo in range(0, (span[1] - span[0] + 1) * size, size):
