@@ -138,3 +138,19 @@ def test_a_failed_direct_write_leaves_nothing(tmp_path, monkeypatch):
             writer.commit()
     assert raised.value.errno == errno.ENOSPC and len(calls) > 3
     assert sorted(os.listdir(tmp_path)) == ["full.wav"] and path.read_bytes() == b"an earlier file"
+
+
+@pytest.mark.parametrize("suffix, subtype", [("wav", "pcm24"), ("wav", "pcm16"), ("wav", "float"), ("flac", "pcm24"),
+                                             ("npy", None)])
+def test_empty_chunks_change_nothing(tmp_path, suffix, subtype):
+    """A chunk of no samples, anywhere, leaves the file as without it (a pcm24 .wav raised a TypeError).
+    Reference: the same writer fed the samples without empty chunks."""
+    values = np.array([0.1, -0.2, 0.3, 0.05])
+    empty = np.zeros((0, 1))
+    scale = 1.0 if suffix == "npy" else 0.5
+    options = dict(rate_hz=8000.0, samples=values.size, scale=scale)
+    if subtype:
+        options["subtype"] = subtype
+    write_drive(tmp_path / f"with.{suffix}", [empty, values[:2], empty, values[2:], empty], **options)
+    write_drive(tmp_path / f"without.{suffix}", [values], **options)
+    assert (tmp_path / f"with.{suffix}").read_bytes() == (tmp_path / f"without.{suffix}").read_bytes()

@@ -126,9 +126,12 @@ _TRANSFORM_STRETCH = 1 << 20
 #: blocks, each whole on one thread (frames, filter transforms and products): at least this many
 #: blocks per stretch (a stretch makes again the few stream pieces its first block's filter reads) ...
 _SPAN_MIN_BLOCKS = 32
-#: ... and at most this many bytes of output per stretch (one per thread in the making, one made ahead,
-#: one being read: 24 MB on 2 threads, whatever the duration).
+#: ... and at most this many bytes of output per stretch ...
 _SPAN_BYTES = 6 * 2**20
+#: ... and at most this many bytes for all the stretches alive at once (one per thread in the making, one
+#: made ahead, one being read: 24 MB on 2 threads, 32 MB on 8, whatever the duration); where a stretch
+#: would then be shorter than its least length, the threads make frames instead.
+_SPAN_POOL_BYTES = 32 * 2**20
 
 
 class Synthesizer:
@@ -464,15 +467,14 @@ class Synthesizer:
         finally:
             pieces.close()
 
-    def _span_record(self, span: tuple[int, int], spare: collections.deque) -> np.ndarray:
+    def _span_record(self, span: tuple[int, int], spare: collections.deque, rows: int) -> np.ndarray:
         """Blocks ``span[0] .. span[1]`` of a high-passed linear stream in one array (a spare one if any,
-        else a new one of :data:`_SPAN_BYTES`), made in the calling thread."""
+        else a new one of ``rows`` samples), made in the calling thread."""
         size = self._block
         try:
             record = spare.popleft()
         except IndexError:
-            width = (len(self.plan.channels),) if self.plan.channels else ()
-            record = np.empty((max(1, _SPAN_BYTES // (8 * size * (width[0] if width else 1))) * size, *width))
+            record = np.empty((rows, len(self.plan.channels)) if self.plan.channels else rows)
         for index, block in enumerate(self._filtered_span(span, 1)):
             record[index * size : (index + 1) * size] = block
         return record
@@ -482,7 +484,8 @@ class Synthesizer:
 
         A stretch makes again the few stream pieces that its first block's filter reads before it
         (:meth:`PartitionedHighpass.first_piece`), so stretches are long
-        (:data:`_SPAN_MIN_BLOCKS` blocks or more, :data:`_SPAN_BYTES` of output at most) and used only when
+        (:data:`_SPAN_MIN_BLOCKS` blocks or more; :data:`_SPAN_BYTES` of output at most, and
+        :data:`_SPAN_POOL_BYTES` for the threads + 2 alive at once) and used only when
         the range holds at least two per thread: then the frames, the filter's transforms and its
         products all run on the threads, where one stretch leaves the filter to a single thread.
         """
@@ -490,7 +493,7 @@ class Synthesizer:
             return None
         blocks = last_block - first_block + 1
         width = len(self.plan.channels) if self.plan.channels else 1
-        most = max(1, _SPAN_BYTES // (8 * width * self._block))
+        most = max(1, min(_SPAN_BYTES, _SPAN_POOL_BYTES // (self.workers + 2)) // (8 * width * self._block))
         least = max(_SPAN_MIN_BLOCKS, self._partitioned.spectra.shape[0] * 8)
         if most < least or blocks < 2 * self.workers * least:
             return None
@@ -511,7 +514,8 @@ class Synthesizer:
             # the stretches' arrays are reused (one per thread in the making, one ahead, one being read): no large
             # allocation per stretch for the allocator to keep
             spare: collections.deque = collections.deque()
-            runs = ordered_map(lambda span: self._span_record(span, spare), spans, self.workers, self.workers + 1)
+            rows = (spans[0][1] - spans[0][0] + 1) * size  # the longest stretch: the first
+            runs = ordered_map(lambda span: self._span_record(span, spare, rows), spans, self.workers, self.workers + 1)
             try:
                 for span, record in zip(spans, runs):
                     for lo in range(0, (span[1] - span[0] + 1) * size, size):

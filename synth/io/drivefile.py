@@ -602,8 +602,25 @@ class DriveWriter:
     RECYCLE_MIN_SAMPLES = 4096
 
     def recycles(self, cache) -> bool:
-        """Whether this writer would write its data over ``cache``'s file (see the ``recycle`` parameter)."""
-        return (self.format == "wav" and not self.channels and cache.columns == 1
+        """Whether this writer would write its data over ``cache``'s file (see the ``recycle`` parameter).
+
+        Only on POSIX systems (the cache is renamed while its reader holds it open, which Windows refuses).
+
+        Examples
+        --------
+        >>> import tempfile, pathlib
+        >>> from vibsynth.io.samplecache import SampleCache
+        >>> folder = pathlib.Path(tempfile.mkdtemp())
+        >>> with DriveWriter(folder / "d.flac", rate_hz=8000.0, samples=8192, scale=1.0) as writer:
+        ...     with SampleCache(folder / "d.flac", 1) as cache:
+        ...         writer.recycles(cache)  # a .flac is never written over its cache
+        False
+
+        References
+        ----------
+        POSIX rename(2) of an open file.
+        """
+        return (os.name == "posix" and self.format == "wav" and not self.channels and cache.columns == 1
                 and cache.samples == self.samples >= self.RECYCLE_MIN_SAMPLES
                 and getattr(cache, "chunk_samples", 0) >= self.RECYCLE_MIN_SAMPLES
                 and wavflac.can_write_directly(self.format, self.subtype, int(round(self.rate_hz))))
@@ -722,9 +739,12 @@ class DriveWriter:
         self._side.temporary.write_text(sidecar.to_json(), encoding="utf-8")
         with open(self._side.temporary, "rb") as handle:
             os.fsync(handle.fileno())
+        # the data reaches the disk before the old sidecar goes: the window in which an interrupt leaves an old
+        # drive without its sidecar (never a drive with another drive's sidecar) is two renames, not an fsync
+        self._data.sync()
         if final_sidecar.exists():
             final_sidecar.unlink()
-        self._data.commit(sync=True)
+        self._data.commit(sync=False)
         self._side.commit(sync=False)
         self._committed = True
         return data

@@ -225,6 +225,8 @@ class SampleCache:
         self.close()
         if self.path is None:
             raise ValueError("the sample cache has been handed over or discarded")
+        if self._reader is not None:  # a second read: the first one's file is closed first
+            self._reader.close()
         self._reader = open(self.path, "rb")
         self.read_bytes = 0
         self.chunk_samples = chunk

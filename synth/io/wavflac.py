@@ -149,10 +149,9 @@ class AudioWriter:
             if overwrite_behind is not None:
                 if not can_write_directly(file_format, subtype, rate, self.channels):
                     raise ValueError(f"only a mono .wav is written over an existing file, not .{file_format} ({subtype})")
-                self._direct = DirectWavWriter(open(self.temporary, "r+b", buffering=0), subtype, rate,
-                                               overwrite_behind)
+                self._direct = _direct_writer(self.temporary, "r+b", subtype, rate, overwrite_behind)
             elif can_write_directly(file_format, subtype, rate, self.channels):
-                self._direct = DirectWavWriter(open(self.temporary, "wb", buffering=0), subtype, rate)
+                self._direct = _direct_writer(self.temporary, "wb", subtype, rate, None)
             else:
                 self._handle = soundfile.SoundFile(
                     str(self.temporary), mode="w", samplerate=rate, channels=int(channels),
@@ -163,7 +162,21 @@ class AudioWriter:
 
     @property
     def direct(self) -> bool:
-        """True when the .wav bytes are written by :class:`DirectWavWriter` (mono .wav), False for libsndfile."""
+        """True when the .wav bytes are written by :class:`DirectWavWriter` (mono .wav), False for libsndfile.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib
+        >>> path = pathlib.Path(tempfile.mkdtemp()) / "d.flac"
+        >>> writer = AudioWriter(path, str(path), "flac", "pcm24", 8000.0, 1.0, 1)
+        >>> writer.direct
+        False
+        >>> writer.close()
+
+        References
+        ----------
+        See :class:`DirectWavWriter`.
+        """
         return self._direct is not None
 
     def _refuse(self, values: np.ndarray, normalised: np.ndarray, limit: float, written: int) -> None:
@@ -360,7 +373,18 @@ class DirectWavWriter:
         self.handle.seek(len(self.header))  # the header is written last, when its sizes and PEAK are known
 
     def encode_float(self, normalised: np.ndarray) -> EncodedWav:
-        """float32 samples (shape (m,)) as data bytes, with their largest |sample| and its first index."""
+        """float32 samples (shape (m,), full scale 1.0) as data bytes, with their largest |sample| and its first index.
+
+        Examples
+        --------
+        >>> import io, numpy as np
+        >>> DirectWavWriter(io.BytesIO(), "float", 8000).encode_float(np.array([0.5, -0.75])).peak_index
+        1
+
+        References
+        ----------
+        IEEE 754 binary32, little-endian (WAVE_FORMAT_IEEE_FLOAT).
+        """
         data = normalised.astype("<f4", copy=False)
         if not data.size:
             return EncodedWav(data, 0.0, 0, 0)
@@ -369,14 +393,25 @@ class DirectWavWriter:
         return EncodedWav(data, float(magnitude[index]), index, data.size)
 
     def encode_counts(self, counts: np.ndarray) -> EncodedWav:
-        """Whole-number float64 counts (shape (m,), within the subtype's range) as data bytes."""
+        """Whole-number float64 counts (shape (m,), within the subtype's range) as data bytes.
+
+        Examples
+        --------
+        >>> import io, numpy as np
+        >>> bytes(DirectWavWriter(io.BytesIO(), "pcm24", 8000).encode_counts(np.array([1.0, -1.0])).data).hex()
+        '010000ffffff'
+
+        References
+        ----------
+        RIFF WAVE PCM: two's-complement little-endian integers, 24-bit packed in three bytes.
+        """
         if self.subtype == "pcm16":
             return EncodedWav(counts.astype("<i2"), 0.0, 0, counts.size)
         packed = counts.astype("<i4").view(np.uint8).reshape(-1, 4)[:, :3]  # low three bytes, little-endian
         return EncodedWav(np.ascontiguousarray(packed), 0.0, 0, counts.size)
 
     def _write(self, data) -> None:
-        view = memoryview(data).cast("B")
+        view = memoryview(np.ascontiguousarray(data).reshape(-1)).cast("B")  # (0, 3) packed bytes: empty, castable
         if self._behind is not None and self.handle.tell() + view.nbytes > self._behind():
             raise RuntimeError(f"the .wav writer would overwrite bytes not yet read ({self.handle.tell() + view.nbytes} "
                                f"> {self._behind()})")
@@ -387,15 +422,33 @@ class DirectWavWriter:
             view = view[done:]
 
     def write(self, chunk: EncodedWav) -> None:
-        """Append a chunk made by :meth:`encode_float` or :meth:`encode_counts` (in order)."""
+        """Append a chunk made by :meth:`encode_float` or :meth:`encode_counts` (in order).
+
+        Examples
+        --------
+        See the class.
+
+        References
+        ----------
+        RIFF WAVE data chunk.
+        """
         if chunk.count and chunk.peak > self.peak:  # strictly larger: the first position of the largest stays
             self.peak, self.peak_position = chunk.peak, self.samples + chunk.peak_index
         self._write(chunk.data)
-        self.data_bytes += memoryview(chunk.data).nbytes
+        self.data_bytes += np.asarray(chunk.data).nbytes
         self.samples += chunk.count
 
     def finish(self) -> None:
-        """Pad the data chunk to an even length, write the final header, cut what follows (the handle stays open)."""
+        """Pad the data chunk to an even length, write the final header, cut what follows (the handle stays open).
+
+        Examples
+        --------
+        See the class.
+
+        References
+        ----------
+        RIFF chunks are padded to an even size; RIFF, data, fact and PEAK fields as libsndfile writes them.
+        """
         if self.data_bytes % 2:
             self._write(b"\0")
         header = bytearray(self.header)
@@ -413,6 +466,16 @@ class DirectWavWriter:
         self._write(header)
         self.handle.truncate(end)  # an overwritten file's older bytes beyond the data (nothing on a fresh file)
         self.handle.seek(end)
+
+
+def _direct_writer(path: Path, mode: str, subtype: str, rate_hz: int, overwrite_behind) -> "DirectWavWriter":
+    """A :class:`DirectWavWriter` on ``path`` opened unbuffered in ``mode`` (the file closed again if it fails)."""
+    handle = open(path, mode, buffering=0)
+    try:
+        return DirectWavWriter(handle, subtype, rate_hz, overwrite_behind)
+    except BaseException:
+        handle.close()
+        raise
 
 
 def _wav_header_template(subtype: str, rate_hz: int) -> tuple[bytes, dict]:
@@ -451,6 +514,21 @@ _DIRECT_WAV_CHECKED: dict = {}
 
 def can_write_directly(file_format: str, subtype: str, rate_hz: int, channels: int = 1) -> bool:
     """Whether a file is written by :class:`DirectWavWriter`: a mono .wav whose bytes match libsndfile's.
+
+    Parameters
+    ----------
+    file_format : str
+        ``wav``, ``flac``, ...
+    subtype : str
+        ``float``, ``pcm24`` or ``pcm16``.
+    rate_hz : int
+        Sample rate, Hz.
+    channels : int
+        Channels of the file.
+
+    Returns
+    -------
+    bool
 
     Examples
     --------
