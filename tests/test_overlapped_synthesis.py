@@ -66,12 +66,17 @@ def test_overlapped_draws_give_the_serial_record(samples, amplitude, options):
             assert synthesizer.take_record().tobytes() == reference.tobytes()
 
 
+def _kurtosis_6_reference(samples: int, seed: int):
+    """The periodic plan of ``samples`` samples and its kurtosis-6 record made the plain serial way."""
+    base = plan_synthesis(PROFILE, samples / RATE, RATE, memory_budget_bytes=1 << 40)
+    return base, _serial(PROFILE, base, {"kurtosis": 6.0}, seed)
+
+
 def test_library_entry_point_uses_the_overlap_and_keeps_the_samples():
     samples = 1 << 16
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        base = plan_synthesis(PROFILE, samples / RATE, RATE, memory_budget_bytes=1 << 40)
-        reference = _serial(PROFILE, base, {"kurtosis": 6.0}, 9)
+        _, reference = _kurtosis_6_reference(samples, 9)
         synthesizer, single = make_synthesizer(PROFILE, samples / RATE, RATE, seed=9, kurtosis=6.0,
                                                memory_budget_bytes=1 << 40, workers=2)
     assert single and synthesizer._drawn is not None
@@ -88,8 +93,7 @@ def test_normals_drawn_for_another_band_are_drawn_again():
     samples = 1 << 15
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        base = plan_synthesis(PROFILE, samples / RATE, RATE, memory_budget_bytes=1 << 40)
-        reference = _serial(PROFILE, base, {"kurtosis": 6.0}, 3)
+        base, reference = _kurtosis_6_reference(samples, 3)
         synthesizer, _ = nongaussian_synthesizer(PROFILE, base, plan_transform(kurtosis=6.0), seed=3, workers=2)
     lo, hi = synthesizer.plan._band
     wrong = Future()
