@@ -592,12 +592,12 @@ def _peak_pass(prepared: PreparedDrive, step, keep: bool):
             cache = SampleCache(prepared.request.output, plan.column_count)
         except OSError as error:
             _cache_dropped(error)
+    from vibsynth.generate.pipeline import largest_magnitude
+
     peak = 0.0
     try:
         for chunk in synthesizer.iter_chunks(CHUNK_SAMPLES):
-            part = chunk[:, columns]
-            if part.size:  # the largest |value| from the extremes: two reductions, no temporary array
-                peak = max(peak, float(part.max()), -float(part.min()))
+            peak = max(peak, largest_magnitude(chunk[:, columns]))
             if cache is not None:
                 try:
                     cache.write(chunk)
