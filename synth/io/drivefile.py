@@ -569,6 +569,7 @@ class DriveWriter:
         self.extra = sidecar
         self._channel_peaks = np.zeros(len(self.channels))
         self.written = 0
+        self._write_back_at = 0  # samples written when the temporary's write-back is next looked at
         self._peak = 0.0
         self._committed = False
         self._side: atomic.AtomicFile | None = None
@@ -715,7 +716,9 @@ class DriveWriter:
         else:
             self._format_writer.write(prepared.payload, self.written)
         self.written += prepared.count
-        self._data.write_back_ahead()
+        if self.written >= self._write_back_at:  # asked once per step's worth of float64 values, not per chunk
+            self._data.write_back_ahead()
+            self._write_back_at = self.written + max(1, atomic.WRITE_BACK_STEP_BYTES // (8 * self.width))
 
     def sidecar(self) -> Sidecar:
         """The sidecar as it will be written (the writer's own fields override the caller's)."""
