@@ -153,3 +153,38 @@ def frame_workers(workers: int, frame_length: int) -> tuple[int, int]:
     threads = max(1, min(int(workers), fit))
     return threads, max(threads, min(4 * threads, fit))
 
+
+#: Samples per stretch that :func:`in_stretches` hands a memoryless stage at a time.
+STAGE_STRETCH = 1 << 20
+
+
+def in_stretches(stage: Callable, y: np.ndarray, workers: int) -> None:
+    """``stage(y[a:b])`` for consecutive stretches of :data:`STAGE_STRETCH` samples, on up to ``workers`` threads.
+
+    For memoryless (sample by sample) stages that change ``y`` in place, such
+    as a transform or a scaling: the result does not depend on the stretches
+    or the number of threads.
+
+    Parameters
+    ----------
+    stage : callable
+        ``stage(view)`` changes a 1-D view of ``y`` in place.
+    y : numpy.ndarray
+        The samples (any unit), changed in place.
+    workers : int
+        Threads (1: in the calling thread).
+
+    Examples
+    --------
+    >>> y = np.arange(5.0)
+    >>> in_stretches(lambda part: np.multiply(part, 2.0, out=part), y, 2)
+    >>> y.tolist()
+    [0.0, 2.0, 4.0, 6.0, 8.0]
+
+    References
+    ----------
+    None (work division).
+    """
+    stretches = [slice(lo, lo + STAGE_STRETCH) for lo in range(0, y.shape[0], STAGE_STRETCH)]
+    for _ in ordered_map(lambda part: stage(y[part]), stretches, workers, workers):
+        pass

@@ -48,6 +48,7 @@ from typing import Iterator
 import numpy as np
 
 from vibsynth.errors import InputError
+from vibsynth.generate._threads import in_stretches
 
 #: Pass-band edge of the spill-over high-pass, as a fraction of the lowest band frequency.
 HIGHPASS_PASS_FRACTION = 0.95
@@ -357,27 +358,14 @@ def periodic_highpass(y: np.ndarray, highpass: SpillHighpass, workers: int = 1, 
         change *= gain - 1.0
         return lowband.add_low_lines(y, change, plan, workers, finish)
     if prepare is not None:
-        _in_stretches(prepare, y, workers)
+        in_stretches(prepare, y, workers)
     spectrum = np.fft.rfft(y)
     del y
     spectrum[:top] *= gain
     y = np.fft.irfft(spectrum, n=samples)
     if finish is not None:
-        _in_stretches(finish, y, workers)
+        in_stretches(finish, y, workers)
     return y
-
-
-#: Samples per stretch that a memoryless stage of :func:`periodic_highpass` is given on the worker threads.
-_STAGE_STRETCH = 1 << 20
-
-
-def _in_stretches(stage, y: np.ndarray, workers: int) -> None:
-    """``stage(y[a:b])`` for consecutive stretches of :data:`_STAGE_STRETCH` samples, on up to ``workers`` threads."""
-    from vibsynth.generate._threads import ordered_map
-
-    stretches = [slice(lo, lo + _STAGE_STRETCH) for lo in range(0, y.shape[0], _STAGE_STRETCH)]
-    for _ in ordered_map(lambda part: stage(y[part]), stretches, workers, workers):
-        pass
 
 
 def block_highpass(pair, block: int, lowpass_spectrum: np.ndarray | None) -> np.ndarray:

@@ -89,7 +89,7 @@ from typing import Iterator
 import numpy as np
 
 from vibsynth.errors import InputError
-from vibsynth.generate._threads import check_workers, frame_workers, ordered_map
+from vibsynth.generate._threads import check_workers, frame_workers, in_stretches, ordered_map
 from vibsynth.generate.frames import _draw_lines, _draw_normals, _shape_lines, raised_cosine_ramp, rest_taper
 from vibsynth.generate.highpass import PartitionedHighpass, block_highpass, periodic_highpass, smooth_bound_gain
 from vibsynth.generate.plan import (
@@ -117,10 +117,6 @@ __all__ = ["BOUND_PASSES", "KURTOSIS_MODELS", "Synthesizer", "check_kurtosis_mod
 #: limit / |sample| at each remaining overshoot (:func:`vibsynth.generate.highpass.smooth_bound_gain`),
 #: so the bound holds exactly and no power reaches 0 Hz.
 BOUND_PASSES = 1
-
-#: A periodic record is transformed in stretches of this many samples (on the worker threads; the
-#: transform is memoryless, so the samples do not depend on it).
-_TRANSFORM_STRETCH = 1 << 20
 
 #: A high-passed linear overlap-add stream on two or more threads is made in stretches of output
 #: blocks, each whole on one thread (frames, filter transforms and products): at least this many
@@ -357,9 +353,7 @@ class Synthesizer:
     def _apply_transform(self, y: np.ndarray) -> None:
         """The memoryless transform of a whole periodic record, in place (stretches on the worker threads)."""
         transform = self.plan.transform
-        stretches = [slice(lo, lo + _TRANSFORM_STRETCH) for lo in range(0, y.shape[0], _TRANSFORM_STRETCH)]
-        for _ in ordered_map(lambda part: transform.apply(y[part], out=y[part]), stretches, self.workers, self.workers):
-            pass
+        in_stretches(lambda part: transform.apply(part, out=part), y, self.workers)
 
     def _bring_to_rest(self, columns: np.ndarray, lines: np.ndarray) -> None:
         """Taper the displacement at both ends and differentiate analytically (in place; see
