@@ -464,10 +464,8 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None, peak_cache: boo
     of making the record again: the record is generated once and the file is
     byte-identical either way.  The temporary is removed when the samples are
     read (before the file is committed), on any error and on an interrupt.
-    A mono .wav is written over the cache's own file, behind the reader
-    (``recycle`` of :class:`vibsynth.io.drivefile.DriveWriter`: its pages are
-    reused instead of new ones taken), and what is left of the cache beyond
-    the file's data is cut before the commit.
+    The cache streams through a few megabytes of page cache, to the disk and
+    back (:class:`vibsynth.io.atomic.StreamedPages`).
     When the folder cannot hold it besides the file (``prepared.peak_pass`` is
     ``"recomputed"``; see :func:`vibsynth.io.drivefile.storage_plan`), or
     writing it fails (a warning says so), the second pass recomputes the record.
@@ -543,11 +541,11 @@ def write_prepared_drive(prepared: PreparedDrive, progress=None, peak_cache: boo
         source = cache.iter_chunks(CHUNK_SAMPLES) if cache is not None else synthesizer.iter_chunks(CHUNK_SAMPLES)
         with drivefile.DriveWriter(request.output, rate_hz=plan.rate_hz, samples=plan.total_samples,
                                    quantities=plan.quantities, subtype=prepared.subtype, scale=scale,
-                                   sidecar=sidecar, channels=plan.channels, recycle=cache) as writer:
+                                   sidecar=sidecar, channels=plan.channels) as writer:
             for ready in _encoded_ahead(writer, source):
                 writer.write_prepared(ready)
                 step(ready.count)
-            if cache is not None:  # read to the end: gone (or cut, if written over) before the commit's fsync
+            if cache is not None:  # read to the end: gone before the commit's fsync
                 cache.discard()
             return writer.commit()
     finally:

@@ -201,8 +201,9 @@ def test_ramps_recorded_in_sidecar_give_the_steady_range(tmp_path):
 
 @pytest.mark.parametrize("suffix", ["npy", "flac"])
 def test_write_back_ahead_starts_the_disk_early_and_leaves_the_bytes_and_no_descriptor(tmp_path, monkeypatch, suffix):
-    """Every 16 MiB (here 64 KiB) of a growing drive file the writer asks the kernel to start writing it
-    back (posix_fadvise); the file is the same bytes as without it, and no descriptor is left open.
+    """Every 4 MiB (here 64 KiB) of a growing drive file the writer asks the kernel to start writing it
+    back and to drop the stretch it started one step before (posix_fadvise DONTNEED); the file is the
+    same bytes as without it, and no descriptor is left open.
     Reference: numpy.load / soundfile.read of the published file, and a write with the advice disabled."""
     from vibsynth.io import atomic
 
@@ -218,9 +219,11 @@ def test_write_back_ahead_starts_the_disk_early_and_leaves_the_bytes_and_no_desc
     _write(tmp_path / f"ahead.{suffix}", data, scale=scale)
     if open_before is not None:
         assert len(os.listdir("/proc/self/fd")) == open_before
-    if advise is not None:  # contiguous ranges from the start, each at least one step
-        assert len(calls) >= 3 and calls[0][0] == 0
-        assert all(a[0] + a[1] == b[0] and a[1] >= 1 << 16 for a, b in zip(calls, calls[1:]))
+    if advise is not None:  # each call reaches a step further, and starts where the call before the last ended
+        ends = [offset + length for offset, length in calls]
+        assert len(calls) >= 3 and calls[0][0] == calls[1][0] == 0
+        assert all(b - a >= 1 << 16 for a, b in zip(ends, ends[1:]))
+        assert all(call[0] == end for call, end in zip(calls[2:], ends))
     monkeypatch.setattr(atomic, "WRITE_BACK_STEP_BYTES", 1 << 62)
     _write(tmp_path / f"plain.{suffix}", data, scale=scale)
     assert (tmp_path / f"ahead.{suffix}").read_bytes() == (tmp_path / f"plain.{suffix}").read_bytes()

@@ -129,6 +129,47 @@ def test_cached_and_recomputed_second_pass_give_the_same_bytes(tmp_path, profile
     assert np.max(np.abs(values)) <= written["scale"]
 
 
+@pytest.mark.skipif(not hasattr(os, "posix_fadvise") or not os.path.isdir("/proc/self/fd"),
+                    reason="page advice (posix_fadvise) and descriptor names (/proc) are Linux")
+def test_the_cache_lets_its_pages_go_behind_the_writer_and_the_reader(tmp_path, profile_path, monkeypatch):
+    """The sample cache is streamed through a few steps of pages (vibsynth.io.atomic.StreamedPages):
+    its writer advises POSIX_FADV_DONTNEED over [the stretch before, the new end) every step (write-back
+    of the new stretch, drop of the one before), its reader over what it has read; the drive file is the
+    same bytes as with the pages kept (DROP_BEHIND off).
+    Reference: POSIX posix_fadvise(2); bytes compared with a run without the advice."""
+    monkeypatch.setattr(atomic, "WRITE_BACK_STEP_BYTES", 1 << 16)
+    advise = os.posix_fadvise
+    calls = []
+
+    def recording(fd, offset, length, advice):
+        calls.append((os.readlink(f"/proc/self/fd/{fd}"), offset, length, advice))
+        return advise(fd, offset, length, advice)
+
+    monkeypatch.setattr(os, "posix_fadvise", recording)
+    (tmp_path / "streamed").mkdir()
+    streamed = _prepare(profile_path, tmp_path / "streamed" / "drive.flac")
+    jobs.write_prepared_drive(streamed)
+    cache_bytes = 8 * streamed.plan.total_samples
+    on_cache = [c for c in calls if ".peak-cache.partial" in c[0]]
+    drops = [(offset, length) for _, offset, length, advice in on_cache if advice == os.POSIX_FADV_DONTNEED]
+    assert any(advice == os.POSIX_FADV_SEQUENTIAL for *_, advice in on_cache)  # the reader says it reads in order
+    ends = [offset + length for offset, length in drops]
+    # the writer's calls, then the reader's: each reaches further, and the reader's ranges join up
+    turn = next(i for i in range(1, len(ends)) if ends[i] < ends[i - 1])
+    writer, reader = drops[:turn], drops[turn:]
+    assert len(writer) >= 4 and writer[0][0] == 0 and ends[turn - 1] > cache_bytes - 2 * (1 << 16)
+    assert all(call[0] == end for call, end in zip(writer[2:], ends))  # each drops the stretch before its last
+    assert len(reader) >= 4 and reader[0][0] == 0
+    assert all(a[0] + a[1] == b[0] for a, b in zip(reader, reader[1:]))
+    assert reader[-1][0] + reader[-1][1] > cache_bytes - 2 * (1 << 16)
+
+    monkeypatch.setattr(atomic, "DROP_BEHIND", False)
+    (tmp_path / "kept").mkdir()
+    kept = _prepare(profile_path, tmp_path / "kept" / "drive.flac")
+    jobs.write_prepared_drive(kept)
+    assert (tmp_path / "streamed" / "drive.flac").read_bytes() == (tmp_path / "kept" / "drive.flac").read_bytes()
+
+
 def test_three_channel_drive_is_the_same_with_and_without_the_cache(tmp_path, monkeypatch):
     spy = _Spy(monkeypatch)
     first, second = tmp_path / "a", tmp_path / "b"

@@ -510,14 +510,6 @@ class DriveWriter:
         each, in g); the sidecar's ``channels`` entries (with each channel's
         ``profile``) should be given by the caller, the writer adds
         ``column``, ``scale``, ``unit`` and ``peak_g``.  Empty: one channel.
-    recycle : vibsynth.io.samplecache.SampleCache, optional
-        The sample cache whose values (being read, :meth:`~vibsynth.io.samplecache.SampleCache.iter_chunks`)
-        are this file's samples, in order.  A mono .wav written directly
-        (:func:`vibsynth.io.wavflac.can_write_directly`) of at least
-        :attr:`RECYCLE_MIN_SAMPLES` samples takes the cache's file over as
-        its temporary and writes over the bytes already read (on a virtual
-        machine, fresh page-cache pages cost far more than reused ones); the
-        bytes are the same.  Otherwise the cache is left alone.
 
     Notes
     -----
@@ -541,7 +533,7 @@ class DriveWriter:
     """
 
     def __init__(self, path, *, rate_hz: float, samples: int, quantities=("acceleration",), subtype=None,
-                 scale: float = 1.0, sidecar: "Sidecar | dict | None" = None, channels=(), recycle=None):
+                 scale: float = 1.0, sidecar: "Sidecar | dict | None" = None, channels=()):
         request = check_drive_request(path, rate_hz=rate_hz, samples=samples, quantities=quantities,
                                       subtype=subtype, scale=scale, channels=channels)
         self.channels = request["channels"]
@@ -574,12 +566,7 @@ class DriveWriter:
         self._committed = False
         self._side: atomic.AtomicFile | None = None
         self._format_writer = None
-        self._overwrite_behind = None
-        adopt = None
-        if recycle is not None and self.recycles(recycle):
-            adopt = recycle.hand_over()
-            self._overwrite_behind = lambda: recycle.read_bytes
-        self._data = atomic.AtomicFile(self.path, adopt=adopt)
+        self._data = atomic.AtomicFile(self.path)
         try:
             self._format_writer = self._open()
         except BaseException:
@@ -590,41 +577,13 @@ class DriveWriter:
         temporary, where = self._data.temporary, str(self.path)
         if self.format in ("wav", "flac"):
             return wavflac.AudioWriter(temporary, where, self.format, self.subtype, self.rate_hz, self.scale,
-                                       max(len(self.channels), 1), overwrite_behind=self._overwrite_behind)
+                                       max(len(self.channels), 1))
         if self.format == "npy":
             return npyarray.NpyWriter(temporary, where, self.samples, self.width)
         from vibsynth.io.sidecar import channel_column_name
 
         names = [channel_column_name(c) for c in self.channels] or None
         return csvtable.CsvWriter(temporary, where, self.quantities, self.rate_hz, names)
-
-    #: Fewest samples of a drive written over its sample cache (then the header and the padding never reach bytes
-    #: not yet read: the cache holds 8 bytes per sample, a .wav at most 4 plus a header of about 100).
-    RECYCLE_MIN_SAMPLES = 4096
-
-    def recycles(self, cache) -> bool:
-        """Whether this writer would write its data over ``cache``'s file (see the ``recycle`` parameter).
-
-        Only on POSIX systems (the cache is renamed while its reader holds it open, which Windows refuses).
-
-        Examples
-        --------
-        >>> import tempfile, pathlib
-        >>> from vibsynth.io.samplecache import SampleCache
-        >>> folder = pathlib.Path(tempfile.mkdtemp())
-        >>> with DriveWriter(folder / "d.flac", rate_hz=8000.0, samples=8192, scale=1.0) as writer:
-        ...     with SampleCache(folder / "d.flac", 1) as cache:
-        ...         writer.recycles(cache)  # a .flac is never written over its cache
-        False
-
-        References
-        ----------
-        POSIX rename(2) of an open file.
-        """
-        return (os.name == "posix" and self.format == "wav" and not self.channels and cache.columns == 1
-                and cache.samples == self.samples >= self.RECYCLE_MIN_SAMPLES
-                and getattr(cache, "chunk_samples", 0) >= self.RECYCLE_MIN_SAMPLES
-                and wavflac.can_write_directly(self.format, self.subtype, int(round(self.rate_hz))))
 
     @property
     def width(self) -> int:

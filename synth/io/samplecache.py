@@ -21,14 +21,24 @@ destination (:func:`vibsynth.io.atomic.remove_stale_partials`).  The writer
 removes it when done, on an error and on an interrupt (SIGTERM in the
 command-line tool).
 
+Memory: the cache is streamed through a few megabytes of pages
+(:class:`vibsynth.io.atomic.StreamedPages`): the writer starts the write-back
+of each stretch and lets the one before go, the reader lets go of what it has
+read.  So the bytes go to the disk (1.47 GB per hour of record, written in the
+background while the record is made, read back in the second pass) and the
+tool's memory, page cache included, stays flat in the duration.  Keeping the
+whole record in page cache instead cost more on the virtual machine this was
+measured on (fresh pages are slow there: a one-hour .flac ran at 0.47 x the
+floor's rate that way, 0.66 x streamed); on a machine with a slow disk the
+second pass waits for the disk (at 150 MB/s about 10 s per hour of record).
+
 The file is opened without truncation (it was created empty): ext4 starts
 writing a file that was truncated to nothing back to disk when it is closed
-(its ``auto_da_alloc`` rule), which for the cache would be 1.5 GB per hour of
-disk writes and a close that blocks for most of a second.
+(its ``auto_da_alloc`` rule), a close that would block until the disk has it.
 
 References
 ----------
-POSIX open(2), write(2), unlink(2); Linux ext4 documentation (``auto_da_alloc``
+POSIX open(2), write(2), unlink(2), posix_fadvise(2); Linux ext4 documentation (``auto_da_alloc``
 mount option); NumPy ``ndarray.tofile`` / ``numpy.fromfile``
 (raw binary, no header).
 """
@@ -128,7 +138,6 @@ class SampleCache:
         self.columns = max(int(columns), 1)
         self.samples = 0
         self.read_bytes = 0
-        self.chunk_samples = 0
         self._reader = None
         self._handle = None
         self._thread = None
@@ -148,7 +157,15 @@ class SampleCache:
             raise
 
     def _drain(self) -> None:
-        """The background writer: chunks from the queue to the file until None; after an error, drop the rest."""
+        """The background writer: chunks from the queue to the file until None; after an error, drop the rest.
+
+        The pages behind are let go as it goes (:class:`vibsynth.io.atomic.StreamedPages`): the cache
+        keeps a few steps of pages in memory, not the whole record."""
+        try:
+            pages = atomic.StreamedPages(self._handle.fileno())
+        except (AttributeError, OSError, ValueError):  # a file object without a descriptor: no advice
+            pages = None
+        written = 0
         while True:
             values = self._queue.get()
             if values is None:
@@ -156,6 +173,9 @@ class SampleCache:
             if self._error is None:
                 try:
                     self._handle.write(memoryview(values).cast("B"))
+                    written += values.nbytes
+                    if pages is not None:
+                        pages.written(written)
                 except BaseException as error:  # noqa: BLE001 - handed to the caller at its next write or close
                     self._error = error
 
@@ -208,8 +228,7 @@ class SampleCache:
     def iter_chunks(self, chunk_samples: int = 65536) -> Iterator[np.ndarray]:
         """The cached values in order, in fresh arrays of shape (m, columns), m <= ``chunk_samples``.
 
-        Finishes writing and opens the file at once (so it may be handed over,
-        :meth:`hand_over`, before the first chunk is read).  Reads one chunk
+        Finishes writing and opens the file at once.  Reads one chunk
         at a time (``numpy.fromfile`` on the open file, sequentially), so
         memory stays that of one chunk whatever the record's length;
         :attr:`read_bytes` counts the bytes read so far.
@@ -224,17 +243,17 @@ class SampleCache:
             raise ValueError(f"chunk size {chunk_samples!r} must be >= 1")
         self.close()
         if self.path is None:
-            raise ValueError("the sample cache has been handed over or discarded")
+            raise ValueError("the sample cache has been discarded")
         if self._reader is not None:  # a second read: the first one's file is closed first
             self._reader.close()
         self._reader = open(self.path, "rb")
         self.read_bytes = 0
-        self.chunk_samples = chunk
         return self._read(self._reader, chunk, self.path)
 
     def _read(self, handle, chunk: int, name: Path) -> Iterator[np.ndarray]:
         total, width = self.samples, BYTES_PER_VALUE * self.columns
         with handle:
+            pages = atomic.StreamedPages(handle.fileno())  # the pages behind the reader are let go
             done = 0
             while done < total:
                 count = min(chunk, total - done)
@@ -243,42 +262,11 @@ class SampleCache:
                     raise OSError(f"sample cache {name} ends after {done + values.size // self.columns} of {total} samples")
                 done += count
                 self.read_bytes = done * width
+                pages.read(self.read_bytes)
                 yield values.reshape(count, self.columns)
 
-    def hand_over(self) -> Path:
-        """Give up the file (it stays open for reading) and return its path; the receiver removes it.
-
-        For a writer that renames the file to its own temporary name and
-        overwrites it behind the reader (the bytes it writes never pass
-        :attr:`read_bytes`), reusing the file's pages instead of taking new
-        ones.  Call after :meth:`iter_chunks`; :meth:`discard` then only
-        closes the reader.
-
-        Examples
-        --------
-        >>> import tempfile, pathlib, numpy as np
-        >>> destination = pathlib.Path(tempfile.mkdtemp()) / "drive.wav"
-        >>> cache = SampleCache(destination, 1)
-        >>> cache.write(np.arange(4.0))
-        >>> chunks = cache.iter_chunks(3)
-        >>> path = cache.hand_over()
-        >>> [chunk[:, 0].tolist() for chunk in chunks], cache.path
-        ([[0.0, 1.0, 2.0], [3.0]], None)
-        >>> path.unlink()
-
-        References
-        ----------
-        POSIX rename(2) (an open descriptor keeps reading the renamed file).
-        """
-        if self._reader is None:
-            raise ValueError("open the reader (iter_chunks) before handing the sample cache over")
-        if self.path is None:
-            raise ValueError("the sample cache has been handed over or discarded")
-        path, self.path = self.path, None
-        return path
-
     def discard(self) -> None:
-        """Close and remove the file (idempotent; a write error is dropped with the file; a file handed over stays)."""
+        """Close and remove the file (idempotent; a write error is dropped with the file)."""
         try:
             self.close()
         except OSError:

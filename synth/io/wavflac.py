@@ -114,13 +114,6 @@ class AudioWriter:
         g value of sample 1.0.
     channels : int
         Channels (columns of each chunk).
-    overwrite_behind : callable, optional
-        ``temporary`` already holds other data (a sample cache being read,
-        :meth:`vibsynth.io.samplecache.SampleCache.hand_over`) and is
-        overwritten from its start instead of emptied: a callable returning
-        how many of its bytes have been read and may be overwritten (see
-        :class:`DirectWavWriter`).  Mono .wav written directly only
-        (:func:`can_write_directly`).
 
     Examples
     --------
@@ -136,7 +129,7 @@ class AudioWriter:
     """
 
     def __init__(self, temporary: Path, where: str, file_format: str, subtype: str, rate_hz: float, scale: float,
-                 channels: int = 1, overwrite_behind=None):
+                 channels: int = 1):
         self.temporary, self.where, self.format, self.subtype = Path(temporary), where, file_format, subtype
         self.rate_hz, self.scale = float(rate_hz), float(scale)
         self.channels = int(channels)
@@ -146,12 +139,8 @@ class AudioWriter:
 
         rate = int(round(self.rate_hz))
         try:
-            if overwrite_behind is not None:
-                if not can_write_directly(file_format, subtype, rate, self.channels):
-                    raise ValueError(f"only a mono .wav is written over an existing file, not .{file_format} ({subtype})")
-                self._direct = _direct_writer(self.temporary, "r+b", subtype, rate, overwrite_behind)
-            elif can_write_directly(file_format, subtype, rate, self.channels):
-                self._direct = _direct_writer(self.temporary, "wb", subtype, rate, None)
+            if can_write_directly(file_format, subtype, rate, self.channels):
+                self._direct = _direct_writer(self.temporary, subtype, rate)
             else:
                 self._handle = soundfile.SoundFile(
                     str(self.temporary), mode="w", samplerate=rate, channels=int(channels),
@@ -339,12 +328,6 @@ class DirectWavWriter:
     subtype : {"float", "pcm24", "pcm16"}
     rate_hz : int
         Sample rate, Hz.
-    overwrite_behind : callable, optional
-        The handle's file holds other data that is read while this writer
-        writes over it (an ``open(path, "r+b", buffering=0)``): returns how
-        many of its leading bytes have been read.  A write that would reach
-        beyond is refused (RuntimeError) instead of destroying unread data;
-        :meth:`finish` cuts the file after the data chunk.
 
     Examples
     --------
@@ -362,14 +345,13 @@ class DirectWavWriter:
     WAV writer (float PEAK: the largest |sample| and its first position).
     """
 
-    def __init__(self, handle, subtype: str, rate_hz: int, overwrite_behind=None):
+    def __init__(self, handle, subtype: str, rate_hz: int):
         self.handle, self.subtype = handle, subtype
         self.header, self._fields = _wav_header_template(subtype, int(rate_hz))
         self.data_bytes = 0
         self.samples = 0
         self.peak = 0.0
         self.peak_position = 0
-        self._behind = overwrite_behind
         self.handle.seek(len(self.header))  # the header is written last, when its sizes and PEAK are known
 
     def encode_float(self, normalised: np.ndarray) -> EncodedWav:
@@ -412,9 +394,6 @@ class DirectWavWriter:
 
     def _write(self, data) -> None:
         view = memoryview(np.ascontiguousarray(data).reshape(-1)).cast("B")  # (0, 3) packed bytes: empty, castable
-        if self._behind is not None and self.handle.tell() + view.nbytes > self._behind():
-            raise RuntimeError(f"the .wav writer would overwrite bytes not yet read ({self.handle.tell() + view.nbytes} "
-                               f"> {self._behind()})")
         while view.nbytes:
             done = self.handle.write(view)
             if done is None:  # pragma: no cover - only non-blocking files return None
@@ -439,7 +418,7 @@ class DirectWavWriter:
         self.samples += chunk.count
 
     def finish(self) -> None:
-        """Pad the data chunk to an even length, write the final header, cut what follows (the handle stays open).
+        """Pad the data chunk to an even length and write the final header (the handle stays open).
 
         Examples
         --------
@@ -464,15 +443,14 @@ class DirectWavWriter:
         end = self.handle.tell()
         self.handle.seek(0)
         self._write(header)
-        self.handle.truncate(end)  # an overwritten file's older bytes beyond the data (nothing on a fresh file)
         self.handle.seek(end)
 
 
-def _direct_writer(path: Path, mode: str, subtype: str, rate_hz: int, overwrite_behind) -> "DirectWavWriter":
-    """A :class:`DirectWavWriter` on ``path`` opened unbuffered in ``mode`` (the file closed again if it fails)."""
-    handle = open(path, mode, buffering=0)
+def _direct_writer(path: Path, subtype: str, rate_hz: int) -> "DirectWavWriter":
+    """A :class:`DirectWavWriter` on ``path`` opened unbuffered for writing (the file closed again if it fails)."""
+    handle = open(path, "wb", buffering=0)
     try:
-        return DirectWavWriter(handle, subtype, rate_hz, overwrite_behind)
+        return DirectWavWriter(handle, subtype, rate_hz)
     except BaseException:
         handle.close()
         raise
