@@ -87,9 +87,11 @@ _CHILD = textwrap.dedent(
     sys.exit(status)
     """
 )
-# A small launcher in between: Linux keeps the parent's peak RSS in a child's ru_maxrss after fork.
+# A small launcher in between: Linux keeps the parent's peak RSS in a child's ru_maxrss after fork.  The
+# launcher times the vibsynth process itself (its start-up included, the launcher's own start-up not).
 SECTIONS = ("memory", "nongaussian", "verify", "sines", "parts", "stream", "process")
-_LAUNCHER = "import subprocess, sys; sys.exit(subprocess.call(sys.argv[1:]))"
+_LAUNCHER = ("import subprocess, sys, time; start = time.perf_counter(); status = subprocess.call(sys.argv[1:]); "
+             "print(time.perf_counter() - start, flush=True); sys.exit(status)")
 
 
 def best_of(job, rounds: int) -> float:
@@ -103,19 +105,18 @@ def best_of(job, rounds: int) -> float:
 
 
 def cli_child(argv: list[str]) -> tuple[float, float]:
-    """Run ``vibsynth ARGV`` in a fresh process; return (peak RSS in MB, wall time in s)."""
+    """Run ``vibsynth ARGV`` in a fresh process; return (its peak RSS in MB, its wall time in s)."""
     env = dict(os.environ, PYTHONPATH=str(REPO) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     # as on a user's machine: Python keeps compiled modules (a shell that forbids it would time the compiler)
     env.pop("PYTHONDONTWRITEBYTECODE", None)
-    start = time.perf_counter()
     done = subprocess.run(
         [sys.executable, "-c", _LAUNCHER, sys.executable, "-c", _CHILD, *argv],
         env=env, capture_output=True, text=True,
     )
-    wall = time.perf_counter() - start
     if done.returncode not in (0, 1):
         raise RuntimeError(f"vibsynth {' '.join(argv)} failed: {done.stderr.strip()}")
-    return int(done.stdout.split()[-1]) * 1024 / 2**20, wall
+    rss_kb, wall = done.stdout.split()[-2:]
+    return int(rss_kb) * 1024 / 2**20, float(wall)
 
 
 def sum_of_sines(profile: AsdProfile, samples: int, rate_hz: float, rng: np.random.Generator) -> np.ndarray:
