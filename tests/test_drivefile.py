@@ -202,12 +202,14 @@ def test_ramps_recorded_in_sidecar_give_the_steady_range(tmp_path):
 @pytest.mark.parametrize("suffix", ["npy", "flac"])
 def test_write_back_ahead_starts_the_disk_early_and_leaves_the_bytes_and_no_descriptor(tmp_path, monkeypatch, suffix):
     """Every 4 MiB (here 64 KiB) of a growing drive file the writer asks the kernel to start writing it
-    back and to drop the stretch it started one step before (posix_fadvise DONTNEED); the file is the
+    back and to drop the stretch it started one step before, every SWEEP_STEPS-th time (here 4) from the
+    file's start (posix_fadvise DONTNEED); the file is the
     same bytes as without it, and no descriptor is left open.
     Reference: numpy.load / soundfile.read of the published file, and a write with the advice disabled."""
     from vibsynth.io import atomic
 
     monkeypatch.setattr(atomic, "WRITE_BACK_STEP_BYTES", 1 << 16)
+    monkeypatch.setattr(atomic, "SWEEP_STEPS", 4)  # a short file: a sweep from the start every fourth step
     calls = []
     advise = getattr(os, "posix_fadvise", None)
     if advise is not None:
@@ -220,10 +222,11 @@ def test_write_back_ahead_starts_the_disk_early_and_leaves_the_bytes_and_no_desc
     if open_before is not None:
         assert len(os.listdir("/proc/self/fd")) == open_before
     if advise is not None:  # each call reaches a step further, and starts where the call before the last ended
-        ends = [offset + length for offset, length in calls]
-        assert len(calls) >= 3 and calls[0][0] == calls[1][0] == 0
+        ends = [offset + length for offset, length in calls]  # (every SWEEP_STEPS-th call starts at 0)
+        assert len(calls) > atomic.SWEEP_STEPS and calls[0][0] == calls[1][0] == 0
         assert all(b - a >= 1 << 16 for a, b in zip(ends, ends[1:]))
-        assert all(call[0] == end for call, end in zip(calls[2:], ends))
+        assert [call[0] for call in calls[2:]] == [0 if (k + 1) % atomic.SWEEP_STEPS == 0 else ends[k - 2]
+                                                   for k in range(2, len(calls))]
     monkeypatch.setattr(atomic, "WRITE_BACK_STEP_BYTES", 1 << 62)
     _write(tmp_path / f"plain.{suffix}", data, scale=scale)
     assert (tmp_path / f"ahead.{suffix}").read_bytes() == (tmp_path / f"plain.{suffix}").read_bytes()

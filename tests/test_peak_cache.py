@@ -134,10 +134,12 @@ def test_cached_and_recomputed_second_pass_give_the_same_bytes(tmp_path, profile
 def test_the_cache_lets_its_pages_go_behind_the_writer_and_the_reader(tmp_path, profile_path, monkeypatch):
     """The sample cache is streamed through a few steps of pages (vibsynth.io.atomic.StreamedPages):
     its writer advises POSIX_FADV_DONTNEED over [the stretch before, the new end) every step (write-back
-    of the new stretch, drop of the one before), its reader over what it has read; the drive file is the
-    same bytes as with the pages kept (DROP_BEHIND off).
-    Reference: POSIX posix_fadvise(2); bytes compared with a run without the advice."""
+    of the new stretch, drop of the one before; every SWEEP_STEPS-th step from the file's start), its
+    reader over what it has read; the drive file is the same bytes as with the pages kept (DROP_BEHIND
+    off), with no advice at all (posix_fadvise missing) and with the advice refused (OSError).
+    Reference: POSIX posix_fadvise(2); bytes compared with runs that keep the pages."""
     monkeypatch.setattr(atomic, "WRITE_BACK_STEP_BYTES", 1 << 16)
+    monkeypatch.setattr(atomic, "SWEEP_STEPS", 3)  # the record is short: a sweep from the start every third step
     advise = os.posix_fadvise
     calls = []
 
@@ -157,8 +159,10 @@ def test_the_cache_lets_its_pages_go_behind_the_writer_and_the_reader(tmp_path, 
     # the writer's calls, then the reader's: each reaches further, and the reader's ranges join up
     turn = next(i for i in range(1, len(ends)) if ends[i] < ends[i - 1])
     writer, reader = drops[:turn], drops[turn:]
-    assert len(writer) >= 4 and writer[0][0] == 0 and ends[turn - 1] > cache_bytes - 2 * (1 << 16)
-    assert all(call[0] == end for call, end in zip(writer[2:], ends))  # each drops the stretch before its last
+    assert len(writer) > atomic.SWEEP_STEPS and writer[0][0] == 0 and ends[turn - 1] > cache_bytes - 2 * (1 << 16)
+    # each drops the stretch before its last; every SWEEP_STEPS-th reaches back to the start
+    assert [call[0] for call in writer[2:]] == [0 if (k + 1) % atomic.SWEEP_STEPS == 0 else ends[k - 2]
+                                                for k in range(2, len(writer))]
     assert len(reader) >= 4 and reader[0][0] == 0
     assert all(a[0] + a[1] == b[0] for a, b in zip(reader, reader[1:]))
     assert reader[-1][0] + reader[-1][1] > cache_bytes - 2 * (1 << 16)
@@ -168,6 +172,18 @@ def test_the_cache_lets_its_pages_go_behind_the_writer_and_the_reader(tmp_path, 
     kept = _prepare(profile_path, tmp_path / "kept" / "drive.flac")
     jobs.write_prepared_drive(kept)
     assert (tmp_path / "streamed" / "drive.flac").read_bytes() == (tmp_path / "kept" / "drive.flac").read_bytes()
+
+    def refused(fd, offset, length, advice):
+        raise OSError(errno.EINVAL, os.strerror(errno.EINVAL))
+
+    for case, patch in (("refused", lambda: monkeypatch.setattr(os, "posix_fadvise", refused)),
+                        ("missing", lambda: monkeypatch.delattr(os, "posix_fadvise"))):
+        patch()
+        folder = tmp_path / case
+        folder.mkdir()
+        jobs.write_prepared_drive(_prepare(profile_path, folder / "drive.flac"))
+        assert _folder(folder) == ["drive.flac", "drive.flac.json"]  # the cache is gone, nothing half-written
+        assert (folder / "drive.flac").read_bytes() == (tmp_path / "kept" / "drive.flac").read_bytes()
 
 
 def test_three_channel_drive_is_the_same_with_and_without_the_cache(tmp_path, monkeypatch):

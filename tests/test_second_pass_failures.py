@@ -23,7 +23,7 @@ import soundfile
 
 from vibsynth import jobs
 from vibsynth.errors import InputError, VibsynthWarning
-from vibsynth.io import drivefile, wavflac
+from vibsynth.io import drivefile, samplecache, wavflac
 from vibsynth.io.drivefile import sidecar_path
 from vibsynth.profile.asd import AsdProfile
 
@@ -79,6 +79,16 @@ def test_a_failure_in_the_second_pass_leaves_nothing(tmp_path, monkeypatch, fail
 
         monkeypatch.setattr(wavflac.DirectWavWriter, "_write", failing)
         expected = OSError if failure == "disk full" else KeyboardInterrupt
+    caches = []
+    original_read = samplecache.SampleCache.iter_chunks
+
+    def reading(cache, *args, **kwargs):  # the second pass read a cache that lay in the folder
+        caches.append((cache.path.name, cache.path.exists()))
+        return original_read(cache, *args, **kwargs)
+
+    monkeypatch.setattr(samplecache.SampleCache, "iter_chunks", reading)
     with pytest.raises(expected):
         jobs.write_prepared_drive(_prepare(tmp_path / "drive.wav"))
-    assert _folder(tmp_path) == []
+    (name, existed), = caches
+    assert existed and name.endswith(".peak-cache.partial")
+    assert _folder(tmp_path) == []  # the cache and the drive's temporary are gone

@@ -25,12 +25,15 @@ Memory: the cache is streamed through a few megabytes of pages
 (:class:`vibsynth.io.atomic.StreamedPages`): the writer starts the write-back
 of each stretch and lets the one before go, the reader lets go of what it has
 read.  So the bytes go to the disk (1.47 GB per hour of record, written in the
-background while the record is made, read back in the second pass) and the
-tool's memory, page cache included, stays flat in the duration.  Keeping the
-whole record in page cache instead cost more on the virtual machine this was
+background while the record is made, read back in the second pass) and, while
+the disk keeps up (about 300 MB/s for two generating threads), the tool's
+memory, page cache included, stays flat in the duration.  Keeping the whole
+record in page cache instead cost more on the virtual machine this was
 measured on (fresh pages are slow there: a one-hour .flac ran at 0.47 x the
-floor's rate that way, 0.66 x streamed); on a machine with a slow disk the
-second pass waits for the disk (at 150 MB/s about 10 s per hour of record).
+floor's rate that way, 0.66 x streamed).  On a slower disk the pages not yet
+written stay cached as before (and need no reading back), the kernel makes the
+first pass wait once its dirty-page limit is reached, and the second pass waits
+for the pages it reads back (at 150 MB/s up to about 10 s per hour of record).
 
 The file is opened without truncation (it was created empty): ext4 starts
 writing a file that was truncated to nothing back to disk when it is closed
@@ -147,8 +150,8 @@ class SampleCache:
         atomic.remove_stale_partials(self.destination)
         self.path = atomic.partial_path(self.destination, CACHE_TAG)
         try:
-            # "r+b", not "wb": truncating the (empty) file would make ext4 write all of it to disk when it is
-            # closed (its auto_da_alloc rule for files rewritten from scratch), though the cache never needs the disk
+            # "r+b", not "wb": a file truncated to nothing is flushed by ext4 when it is closed (its auto_da_alloc
+            # rule for files rewritten from scratch), a close that would wait for the disk
             self._handle = open(self.path, "r+b")
             self._thread = threading.Thread(target=self._drain, name="vibsynth-sample-cache", daemon=True)
             self._thread.start()
@@ -253,7 +256,7 @@ class SampleCache:
     def _read(self, handle, chunk: int, name: Path) -> Iterator[np.ndarray]:
         total, width = self.samples, BYTES_PER_VALUE * self.columns
         with handle:
-            pages = atomic.StreamedPages(handle.fileno())  # the pages behind the reader are let go
+            pages = atomic.StreamedPages(handle.fileno(), sequential=True)  # the pages behind are let go
             done = 0
             while done < total:
                 count = min(chunk, total - done)

@@ -13,7 +13,11 @@ The floor is measured again right before each measure that is set against it
 (best of ``--rounds``), and each ratio uses the floor measured next to it: on a
 shared machine the floor's own time drifts by 10-15 % within minutes, which a
 single floor at the start would put into every ratio.  The JSON keeps every
-floor (``floors_s``); the table's first row gives their range.
+floor (``floors_s``) and their median (``floor_s``; before, the one floor of the
+run); the table's first row gives their range.  A child process timed right
+after the floor starts on memory the floor has just handed back, which on a
+virtual machine whose host reclaims free memory is the slower case: the
+whole-process ratios are the conservative ones.
 
 Measures
 --------
