@@ -44,9 +44,9 @@ WRITE_BACK_STEP_BYTES = 4 * 2**20
 #: False: write-back is only started early and the file's pages stay cached.
 DROP_BEHIND = True
 
-#: Every this many steps the writer's advice reaches back to the file's start, so that pages that were
-#: still being written when their turn came (a disk slower than the writer) are dropped too.
-SWEEP_STEPS = 16
+#: Every this many steps (256 MiB) the writer's advice reaches back to the file's start, so that pages
+#: that were still being written when their turn came (a disk slower than the writer) are dropped too.
+SWEEP_STEPS = 64
 
 
 class StreamedPages:
