@@ -26,7 +26,9 @@ Measures
    draws (goal <= 1.5x);
 2. generate streamed to .flac and .wav, one hour at 51.2 kHz: throughput
    against the floor's rate (goal >= 0.6x) and peak RSS of the process
-   (goal < 256 MB, and flat when the duration doubles: half an hour vs one hour),
+   (goal < 256 MB, and flat when the duration doubles: half an hour vs one hour)
+   and the growth of the machine's page cache while it runs (the file's and
+   the sample cache's pages, which RSS does not count),
    with how the second pass got the record (the peak pass's samples kept in a
    temporary file, and its size, or made again);
 3. verify against scipy.signal.welch on the same in-memory array
@@ -108,18 +110,44 @@ def best_of(job, rounds: int) -> float:
     return best
 
 
-def cli_child(argv: list[str]) -> tuple[float, float]:
-    """Run ``vibsynth ARGV`` in a fresh process; return (its peak RSS in MB, its wall time in s)."""
+def page_cache_mb() -> float | None:
+    """The machine's page cache now (``Cached`` of /proc/meminfo), MB; None where there is no /proc/meminfo."""
+    try:
+        with open("/proc/meminfo") as handle:
+            for line in handle:
+                if line.startswith("Cached:"):
+                    return int(line.split()[1]) / 1024
+    except OSError:
+        return None
+    return None
+
+
+def cli_child(argv: list[str], watch_page_cache: bool = False):
+    """Run ``vibsynth ARGV`` in a fresh process; return (its peak RSS in MB, its wall time in s).
+
+    With ``watch_page_cache``, also the largest growth of the machine's page cache while it ran
+    (MB, sampled every 0.1 s; None without /proc/meminfo): the memory a streamed drive takes
+    outside the process (its file, its sample cache), which peak RSS does not count.
+    """
     env = dict(os.environ, PYTHONPATH=str(REPO) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     # as on a user's machine: Python keeps compiled modules (a shell that forbids it would time the compiler)
     env.pop("PYTHONDONTWRITEBYTECODE", None)
-    done = subprocess.run(
+    base = page_cache_mb() if watch_page_cache else None
+    growth = 0.0
+    child = subprocess.Popen(
         [sys.executable, "-c", _LAUNCHER, sys.executable, "-c", _CHILD, *argv],
-        env=env, capture_output=True, text=True,
+        env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
     )
-    if done.returncode not in (0, 1):
-        raise RuntimeError(f"vibsynth {' '.join(argv)} failed: {done.stderr.strip()}")
-    rss_kb, wall = done.stdout.split()[-2:]
+    if base is not None:
+        while child.poll() is None:
+            growth = max(growth, (page_cache_mb() or base) - base)
+            time.sleep(0.1)
+    stdout, stderr = child.communicate()
+    if child.returncode not in (0, 1):
+        raise RuntimeError(f"vibsynth {' '.join(argv)} failed: {stderr.strip()}")
+    rss_kb, wall = stdout.split()[-2:]
+    if watch_page_cache:
+        return int(rss_kb) * 1024 / 2**20, float(wall), (growth if base is not None else None)
     return int(rss_kb) * 1024 / 2**20, float(wall)
 
 
@@ -329,13 +357,15 @@ def main() -> None:
                     capture_output=True, text=True, check=True).stdout)
                 results[f"stream_{suffix}_peak_pass"] = plan.get("peak_pass")
                 results[f"stream_{suffix}_cache_bytes"] = plan.get("cache_bytes", 0)
-                peaks = []
+                peaks, cached = [], []
                 for seconds in (stream_s / 2, stream_s):
                     out = folder / f"stream.{suffix}"
                     floor = measure_floor()
-                    rss, wall = cli_child(["generate", str(profile_path), "-o", str(out), "--duration", str(seconds),
-                                           "--rate", str(int(RATE_HZ)), "--seed", "1", "--quiet"])
+                    rss, wall, grown = cli_child(["generate", str(profile_path), "-o", str(out), "--duration",
+                                                  str(seconds), "--rate", str(int(RATE_HZ)), "--seed", "1", "--quiet"],
+                                                 watch_page_cache=True)
                     peaks.append(rss)
+                    cached.append(grown)
                     total = seconds * RATE_HZ
                     # end to end: process start, peak pass (full scale from the record's peak) and encoding
                     throughput = (total / wall) / (samples / floor)
@@ -347,6 +377,10 @@ def main() -> None:
                 results[f"stream_{suffix}_rss_mb_half_then_full"] = peaks
                 rows.append((f"  peak RSS .{suffix} (half, full duration)", "", "", f"{peaks[0]:.0f} / {peaks[1]:.0f} MB",
                              "< 256, flat"))
+                if None not in cached:  # outside the process: the file's and the sample cache's pages
+                    results[f"stream_{suffix}_page_cache_growth_mb_half_then_full"] = cached
+                    rows.append((f"  page cache growth .{suffix} (half, full)", "", "",
+                                 f"{cached[0]:.0f} / {cached[1]:.0f} MB", "(context)"))
                 rows.append((f"  peak pass .{suffix}: {plan.get('peak_pass')}", "", "",
                              f"temporary {plan.get('cache_bytes', 0) / 1e9:.2f} GB", "(context)"))
             rss, wall = cli_child(["verify", str(folder / "stream.flac"), "--json"])
