@@ -131,10 +131,8 @@ class StreamedPages:
                 start = self.started
             else:
                 start = 0 if self._steps % SWEEP_STEPS == 0 else self.dropped
-            try:
-                self._advise(self.descriptor, start, size - start, os.POSIX_FADV_DONTNEED)
-            except OSError:  # advice only: a file system that refuses it loses nothing
-                self._advise = None
+            self._quietly(start, size - start, os.POSIX_FADV_DONTNEED)
+            if self._advise is None:  # refused: advice only, a file system that refuses it loses nothing
                 return self.started
             if DROP_BEHIND:
                 self.dropped = self.started
@@ -352,15 +350,15 @@ class AtomicFile:
         ----------
         See :class:`StreamedPages`.
         """
-        if self.committed or not hasattr(os, "posix_fadvise"):
-            return self._pages.started if self._pages is not None else 0
-        try:
-            if self._watch is None:
-                self._watch = os.open(self.temporary, os.O_RDONLY)
-                self._pages = StreamedPages(self._watch)
-            return self._pages.written(os.fstat(self._watch).st_size)
-        except OSError:  # advice only: a file system that refuses it loses nothing
-            return self._pages.started if self._pages is not None else 0
+        if not self.committed and hasattr(os, "posix_fadvise"):
+            try:
+                if self._watch is None:
+                    self._watch = os.open(self.temporary, os.O_RDONLY)
+                    self._pages = StreamedPages(self._watch)
+                self._pages.written(os.fstat(self._watch).st_size)
+            except OSError:  # advice only: a file system that refuses it loses nothing
+                pass
+        return self._pages.started if self._pages is not None else 0
 
     def _unwatch(self) -> None:
         if self._watch is not None:
